@@ -1,0 +1,96 @@
+"""Timing-engine speed against a deliberately naive simpy model.
+
+Fixed workload: 8 banks, 70% reads, 1 million requests, offered near
+saturation.  The naive model (one simpy process per request, banks as plain
+``simpy.Resource`` objects, FIFO) runs the same request stream (same arrival
+times, banks and service times) in the same process.  Prints simulated
+requests per second for both and their ratio (target: >= 3x).  Prints; does
+not assert.
+
+    python benchmarks/bench_timing.py [--requests N]
+"""
+from __future__ import annotations
+
+import argparse
+import time
+
+import numpy as np
+import simpy
+
+from memsim.config import load_config
+from memsim.engine.timing import TimingEngine
+from memsim.experiment.run import build_path
+from memsim.tech.array import AddressMap
+from memsim.tech.cell import CellTech
+from memsim.workload.synthetic import SyntheticSource
+
+
+def config(n: int):
+    return load_config(None, {
+        "array.channels": 1, "array.banks": 8, "array.lines": 65536,
+        "workload.requests": n, "workload.read_fraction": 0.7,
+        "workload.arrival": "poisson", "workload.interval_ns": 15.5,   # ~90% bank load
+        "write.scheme": "data_comparison", "run.seed": 5,
+    })
+
+
+def naive(cfg, chunks) -> float:
+    """One process per request, banks as Resources; returns wall seconds."""
+    cell = CellTech.from_config(cfg.cell)
+    amap = AddressMap(cfg.array.channels, cfg.array.banks)
+    path = build_path(cfg, np.random.default_rng(cfg.run.seed))
+    times, banks, service = [], [], []
+    for c in chunks:   # same stream; service times from the same write path
+        wr = c.op == 1
+        wb = path.apply(c.line[wr])
+        s = np.full(len(c), cell.read_ns + cfg.array.burst_ns)
+        s[wr] = (cell.program_ns(wb.n_set, wb.n_reset, cfg.array.bank_budget_ua)
+                 + cell.read_ns + cfg.array.burst_ns)
+        times.append(c.time_ns)
+        banks.append(amap.locate(c.line)[1])
+        service.append(s)
+    t, b, s = (np.concatenate(x).tolist() for x in (times, banks, service))
+    t0 = time.perf_counter()
+    env = simpy.Environment()
+    res = [simpy.Resource(env, capacity=1) for _ in range(amap.total_banks)]
+    done = []
+
+    def request(i):
+        with res[b[i]].request() as r:
+            yield r
+            yield env.timeout(s[i])
+        done.append(env.now - t[i])
+
+    def source():
+        for i in range(len(t)):
+            if t[i] > env.now:
+                yield env.timeout(t[i] - env.now)
+            env.process(request(i))
+
+    env.process(source())
+    env.run()
+    assert len(done) == len(t)
+    return time.perf_counter() - t0
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser()
+    ap.add_argument("--requests", type=int, default=1_000_000)
+    n = ap.parse_args().requests
+    cfg = config(n)
+    chunks = list(SyntheticSource(cfg.workload, cfg.footprint, np.random.default_rng(cfg.run.seed),
+                                  cfg.run.chunk_requests))
+    t0 = time.perf_counter()
+    path = build_path(cfg, np.random.default_rng(cfg.run.seed))
+    tot = TimingEngine(cfg, iter(chunks), path).run()
+    ours = time.perf_counter() - t0
+    base = naive(cfg, chunks)
+    print(f"requests                 {n}")
+    print(f"bank utilization         {tot.bank_busy_ns.mean() / tot.simulated_ns:.2f}")
+    print(f"memsim timing engine     {n / ours:12,.0f} requests/s  ({ours:.2f} s, incl. bit-level write path)")
+    print(f"naive simpy model        {n / base:12,.0f} requests/s  ({base:.2f} s, simulation only)")
+    print(f"ratio                    {base / ours:.2f}x  (target >= 3x)")
+
+
+if __name__ == "__main__":
+    main()

@@ -1,0 +1,26 @@
+"""memsim: a discrete-event model of phase-change memory behind a controller.
+
+Python entry points mirror the CLI: :func:`simulate` runs one config.
+"""
+from __future__ import annotations
+
+__version__ = "0.1.0"
+
+_LAZY = {
+    "simulate": ("memsim.experiment.run", "simulate"),
+    "load_config": ("memsim.config", "load_config"),
+    "RunConfig": ("memsim.config", "RunConfig"),
+    "RunResult": ("memsim.metrics.result", "RunResult"),
+}
+
+__all__ = ["__version__", *_LAZY]
+
+
+def __getattr__(name: str):
+    # Lazy so that importing a small part (e.g. memsim.tech) stays cheap.
+    if name in _LAZY:
+        import importlib
+
+        mod, attr = _LAZY[name]
+        return getattr(importlib.import_module(mod), attr)
+    raise AttributeError(f"module 'memsim' has no attribute {name!r}")

@@ -1,0 +1,1 @@
+"""memsim.engine."""

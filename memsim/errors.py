@@ -1,0 +1,40 @@
+"""The one exception type for user mistakes.
+
+A :class:`ConfigError` (or any :class:`UserError`) is caught by the CLI and
+printed as a single line; the process exits with code 2.  Anything else is a
+bug and keeps its traceback.
+"""
+from __future__ import annotations
+
+
+class UserError(Exception):
+    """A mistake in user input: config, trace, sweep file or command line.
+
+    Parameters
+    ----------
+    where:
+        The file (and line) or dotted key the mistake is in, e.g.
+        ``"demo.toml: controller.drain_low"`` or ``"trace.csv:17"``.
+    found:
+        What was found, as the user wrote it.
+    allowed:
+        What would have been accepted.
+    """
+
+    def __init__(self, where: str, found: str, allowed: str) -> None:
+        self.where = where
+        self.found = found
+        self.allowed = allowed
+        super().__init__(f"{where}: found {found}; allowed: {allowed}")
+
+    def one_line(self) -> str:
+        """The message as one line (newlines folded)."""
+        return " ".join(str(self).split())
+
+
+class ConfigError(UserError):
+    """A mistake in a run config, sweep file or ``--set`` override."""
+
+
+class TraceError(UserError):
+    """A malformed trace file line or column."""

@@ -1,0 +1,165 @@
+"""The write path: leveler remap + write scheme + stored content + wear.
+
+Both engines feed user line writes, chunk by chunk and in the order the
+controller accepts them, through one :class:`WritePath`.  It keeps the stored
+bits (and flag cells) of every modeled physical line, so the SET and RESET
+counts of each write come from comparing real bits, and it counts wear per
+line and per cell.  The leveler's own moves are applied in stream order as
+extra writes.
+
+Writes inside a chunk are processed in *rounds*: a round holds events that
+touch distinct lines, and every line's events keep their order, so each round
+is one vectorized step.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from memsim.policy.leveling.base import Leveler
+from memsim.policy.write.base import WriteScheme
+from memsim.workload.content import DataModel
+
+
+@dataclass
+class WriteBatch:
+    """Writes issued for one chunk of user writes, in stream order.
+
+    ``user[k]`` is the index of the user write (within the chunk's writes)
+    that event ``k`` carries, or -1 for a leveler move; ``after[k]`` is the
+    user write after which a move is issued (for user writes, their own
+    index).
+    """
+
+    phys: np.ndarray
+    n_set: np.ndarray
+    n_reset: np.ndarray
+    user: np.ndarray
+    after: np.ndarray
+    meta_writes: int = 0      # leveler metadata writes (counted, not placed)
+
+    @property
+    def is_move(self) -> np.ndarray:
+        return self.user < 0
+
+
+def assign_rounds(dst: np.ndarray, src: np.ndarray) -> np.ndarray:
+    """Round of each event so that a round touches distinct lines and every
+    line's events keep their order.  ``src`` is -1 for events that only
+    write ``dst``.
+    """
+    n = dst.size
+    if n == 0:
+        return np.empty(0, dtype=np.int64)
+    if (src < 0).all():
+        # Round = occurrence rank of the line within the chunk (vectorized).
+        order = np.argsort(dst, kind="stable")
+        s = dst[order]
+        start = np.r_[True, s[1:] != s[:-1]]
+        grp_start = np.maximum.accumulate(np.where(start, np.arange(n), 0))
+        rounds = np.empty(n, dtype=np.int64)
+        rounds[order] = np.arange(n) - grp_start
+        return rounds
+    last: dict[int, int] = {}
+    rounds = np.empty(n, dtype=np.int64)
+    get = last.get
+    for k, (d, s) in enumerate(zip(dst.tolist(), src.tolist())):
+        r = get(d, -1)
+        if s >= 0:
+            r = max(r, get(s, -1))
+            last[s] = r + 1
+        last[d] = r + 1
+        rounds[k] = r + 1
+    return rounds
+
+
+class WritePath:
+    """Stored content and wear of the modeled physical lines."""
+
+    def __init__(self, leveler: Leveler, scheme: WriteScheme, data: DataModel,
+                 rng: np.random.Generator, cell_wear: bool = True) -> None:
+        self.leveler = leveler
+        self.scheme = scheme
+        self.data = data
+        self.rng = rng
+        n = leveler.n_physical
+        self.line_bits = scheme.line_bytes * 8
+        self.stored = data.initial(rng, n)
+        self.flags = np.zeros((n, scheme.flag_cells), dtype=np.uint8)
+        self.line_writes = np.zeros(n, dtype=np.int64)
+        self.line_cells = np.zeros(n, dtype=np.int64)       # cells programmed per line
+        self.cell_wear = (np.zeros((n, self.line_bits + scheme.flag_cells), dtype=np.uint32)
+                          if cell_wear else None)
+        self.user_writes = 0
+        self.move_writes = 0
+        self.meta_writes = 0
+
+    @property
+    def n_physical(self) -> int:
+        return self.stored.shape[0]
+
+    def logical_content(self, logical: np.ndarray) -> np.ndarray:
+        phys = self.leveler.lookup(np.asarray(logical, dtype=np.int64))
+        return self.scheme.decode(self.stored[phys], self.flags[phys])
+
+    def apply(self, logical: np.ndarray, data: np.ndarray | None = None) -> WriteBatch:
+        """Write user lines ``logical`` (in order); ``data`` optional new content."""
+        logical = np.asarray(logical, dtype=np.int64)
+        n = logical.size
+        lr = self.leveler.apply(logical)
+        mv = lr.moves
+        m = len(mv)
+        # Events in stream order: each user write, then the moves issued after it.
+        key = np.concatenate([np.arange(n, dtype=np.int64) * 2, np.asarray(mv.after) * 2 + 1])
+        order = np.argsort(key, kind="stable")
+        dst = np.concatenate([lr.phys, mv.dst]).astype(np.int64)[order]
+        src = np.concatenate([np.full(n, -1, np.int64), mv.src]).astype(np.int64)[order]
+        user = np.concatenate([np.arange(n, dtype=np.int64), np.full(m, -1, np.int64)])[order]
+        after = np.concatenate([np.arange(n, dtype=np.int64), np.asarray(mv.after, np.int64)])[order]
+
+        if data is None and self.data.kind != "flip":
+            data = self.data.new(self.rng, np.empty((n, self.scheme.line_bytes), np.uint8))
+        n_set = np.zeros(n + m, dtype=np.int64)
+        n_reset = np.zeros(n + m, dtype=np.int64)
+        rounds = assign_rounds(dst, src)
+        by_round = np.argsort(rounds, kind="stable")
+        bounds = np.searchsorted(rounds[by_round], np.arange(rounds.max(initial=-1) + 2))
+        for r in range(bounds.size - 1):
+            ev = by_round[bounds[r]:bounds[r + 1]]
+            d = dst[ev]
+            old, old_flags = self.stored[d], self.flags[d]
+            u = user[ev]
+            is_user = u >= 0
+            new = np.empty_like(old)
+            if is_user.any():
+                if data is not None:
+                    new[is_user] = data[u[is_user]]
+                else:
+                    cur = self.scheme.decode(old[is_user], old_flags[is_user])
+                    new[is_user] = self.data.new(self.rng, cur)
+            if not is_user.all():
+                s = src[ev[~is_user]]
+                new[~is_user] = self.scheme.decode(self.stored[s], self.flags[s])
+            enc = self.scheme.encode(old, old_flags, new)
+            self.stored[d] = enc.stored
+            self.flags[d] = enc.flags
+            ns, nr = enc.n_set, enc.n_reset
+            n_set[ev], n_reset[ev] = ns, nr
+            self.line_writes[d] += 1
+            self.line_cells[d] += ns + nr
+            if self.cell_wear is not None:
+                prog = np.unpackbits(enc.set_mask | enc.reset_mask, axis=1)
+                if enc.flag_set.shape[1]:
+                    prog = np.concatenate([prog, (enc.flag_set | enc.flag_reset)], axis=1)
+                self.cell_wear[d] += prog
+        self.user_writes += n
+        self.move_writes += m
+        self.meta_writes += mv.cost_writes
+        return WriteBatch(dst, n_set, n_reset, user, after, mv.cost_writes)
+
+    def bit_profile(self) -> np.ndarray:
+        """Programs per bit position (data cells then flag cells), summed over lines."""
+        if self.cell_wear is None:
+            raise ValueError("cell wear counters are off")
+        return self.cell_wear.sum(axis=0, dtype=np.int64)

@@ -1,0 +1,140 @@
+"""Synthetic request streams: address patterns, read/write mix, arrivals.
+
+A source yields :class:`~memsim.workload.chunk.Chunk` objects.  A request of
+``size_lines`` lines becomes that many consecutive line requests with the
+same arrival time.  Each pattern exposes its expected values (arrival rate,
+read share) so tests can compare sampled moments with them.
+"""
+from __future__ import annotations
+
+from typing import Callable, Iterator
+
+import numpy as np
+
+from memsim.workload.chunk import READ, WRITE, Chunk
+
+AddressFn = Callable[[np.random.Generator, int, int], np.ndarray]
+
+
+class AddressPattern:
+    """Stateful address generator over ``footprint`` lines."""
+
+    def __init__(self, kind: str, footprint: int, rng: np.random.Generator, *,
+                 zipf_exponent: float = 1.0, hot_fraction: float = 0.1,
+                 hot_share: float = 0.9, stride_lines: int = 1) -> None:
+        self.kind = kind
+        self.footprint = footprint
+        self.pos = 0
+        self.stride = stride_lines
+        self.hot_share = hot_share
+        if kind == "zipf":
+            ranks = np.arange(1, footprint + 1, dtype=np.float64)
+            w = ranks ** -zipf_exponent
+            self.cdf = np.cumsum(w / w.sum())
+            # Hot ranks are scattered over the footprint, not packed in one
+            # bank (common practice for Zipf address streams).
+            self.rank_to_line = rng.permutation(footprint)
+        elif kind == "hotspot":
+            self.n_hot = max(1, int(round(hot_fraction * footprint)))
+            self.hot_lines = rng.permutation(footprint)
+        elif kind not in ("uniform", "sequential", "strided"):
+            raise ValueError(f"unknown address pattern {kind}")
+
+    def draw(self, rng: np.random.Generator, n: int) -> np.ndarray:
+        f = self.footprint
+        if self.kind == "uniform":
+            return rng.integers(0, f, size=n, dtype=np.int64)
+        if self.kind == "zipf":
+            r = np.searchsorted(self.cdf, rng.random(n), side="right")
+            return self.rank_to_line[np.minimum(r, f - 1)].astype(np.int64)
+        if self.kind == "hotspot":
+            hot = rng.random(n) < self.hot_share
+            idx = np.where(hot, rng.integers(0, self.n_hot, size=n),
+                           rng.integers(self.n_hot, max(self.n_hot + 1, f), size=n))
+            return self.hot_lines[np.minimum(idx, f - 1)].astype(np.int64)
+        step = 1 if self.kind == "sequential" else self.stride
+        out = (self.pos + step * np.arange(n, dtype=np.int64)) % f
+        self.pos = int((self.pos + step * n) % f)
+        return out
+
+
+class Arrivals:
+    """Arrival times, ns.  ``closed`` arrivals are decided by the engine."""
+
+    def __init__(self, kind: str, interval_ns: float, on_ns: float = 0.0, off_ns: float = 0.0) -> None:
+        self.kind = kind
+        self.interval = interval_ns
+        self.on_ns, self.off_ns = on_ns, off_ns
+        self.t = 0.0            # last arrival (wall time)
+        self.active = 0.0       # onoff: time spent in on periods so far
+        self.on_end = None      # onoff: active time at which the current burst ends
+
+    def expected_rate_per_ns(self) -> float:
+        if self.kind == "onoff":
+            return self.on_ns / (self.on_ns + self.off_ns) / self.interval
+        return 1.0 / self.interval
+
+    def draw(self, rng: np.random.Generator, n: int) -> np.ndarray:
+        if self.kind == "closed":
+            return np.zeros(n)
+        if self.kind == "fixed":
+            out = self.t + self.interval * np.arange(1, n + 1)
+        elif self.kind == "poisson":
+            out = self.t + np.cumsum(rng.exponential(self.interval, n))
+        else:
+            out = self._onoff(rng, n)
+        self.t = float(out[-1])
+        return out
+
+    def _onoff(self, rng: np.random.Generator, n: int) -> np.ndarray:
+        # Poisson arrivals in "active" time, mapped to wall time by inserting
+        # exponential off gaps at exponential burst boundaries.
+        active = self.active + np.cumsum(rng.exponential(self.interval, n))
+        out = np.empty(n)
+        shift = self.t - self.active if self.on_end is not None else 0.0
+        if self.on_end is None:
+            self.on_end = rng.exponential(self.on_ns)
+        i = 0
+        while i < n:
+            j = int(np.searchsorted(active, self.on_end, side="right"))
+            out[i:j] = active[i:j] + shift
+            i = max(i, j)
+            if i < n:
+                shift += rng.exponential(self.off_ns)
+                self.on_end += rng.exponential(self.on_ns)
+        self.active = float(active[-1])
+        return out
+
+
+class SyntheticSource:
+    """Chunks of requests from a workload config section."""
+
+    def __init__(self, wl, footprint: int, rng: np.random.Generator, chunk_requests: int = 65536,
+                 address: AddressPattern | None = None) -> None:
+        self.wl = wl
+        self.rng = rng
+        self.chunk = chunk_requests
+        self.address = address or AddressPattern(
+            wl.pattern, footprint, rng, zipf_exponent=wl.zipf_exponent,
+            hot_fraction=wl.hot_fraction, hot_share=wl.hot_share, stride_lines=wl.stride_lines)
+        self.arrivals = Arrivals(wl.arrival, wl.interval_ns, wl.on_ns, wl.off_ns)
+        self.footprint = footprint
+
+    def expected_read_fraction(self) -> float:
+        return self.wl.read_fraction
+
+    def __iter__(self) -> Iterator[Chunk]:
+        k = self.wl.size_lines
+        left = self.wl.requests
+        while left > 0:
+            n_req = min(-(-self.chunk // k), -(-left // k))
+            t = self.arrivals.draw(self.rng, n_req)
+            ops = np.where(self.rng.random(n_req) < self.wl.read_fraction, READ, WRITE)
+            base = self.address.draw(self.rng, n_req)
+            if k > 1:
+                t = np.repeat(t, k)
+                ops = np.repeat(ops, k)
+                base = (np.repeat(base, k) + np.tile(np.arange(k), n_req)) % self.footprint
+            m = min(left, t.size)
+            left -= m
+            yield Chunk(t[:m], ops[:m], base[:m])
