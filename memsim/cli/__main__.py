@@ -1,0 +1,3 @@
+from memsim.cli import entry
+
+entry()
