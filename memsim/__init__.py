@@ -11,6 +11,11 @@ _LAZY = {
     "load_config": ("memsim.config", "load_config"),
     "RunConfig": ("memsim.config", "RunConfig"),
     "RunResult": ("memsim.metrics.result", "RunResult"),
+    "sweep": ("memsim.experiment.sweep", "sweep"),
+    "lifetime": ("memsim.experiment.lifetime", "lifetime"),
+    "compare": ("memsim.experiment.compare", "compare"),
+    "drift_report": ("memsim.experiment.drift", "drift_report"),
+    "point_stats": ("memsim.experiment.sweep", "point_stats"),
 }
 
 __all__ = ["__version__", *_LAZY]

@@ -94,8 +94,10 @@ def validate(data: dict, source: str = "<config>", overridden: set[str] | None =
         if name not in preset_names():
             raise ConfigError(_where(source, "cell.preset", overridden), repr(name),
                               "one of " + ", ".join(preset_names()))
-        preset = load_preset(name).get("cell", {})
-        data["cell"] = {**preset, **cell}
+        # Every section of the preset file supplies defaults under the user's values.
+        for section, values in load_preset(name).items():
+            if isinstance(values, dict):
+                data[section] = {**values, **data.get(section, {})}
     try:
         cfg = RunConfig.model_validate(data)
     except ValidationError as exc:
@@ -128,6 +130,9 @@ def check_consistency(cfg: RunConfig, source: str, overridden: set[str]) -> None
     if cfg.footprint > a.lines:
         raise ConfigError(_where(source, "workload.footprint_lines", overridden),
                           str(cfg.workload.footprint_lines), f"at most array.lines ({a.lines})")
+    if 0 < cfg.power.budget_ua < cfg.cell.reset_ua:
+        raise ConfigError(_where(source, "power.budget_ua", overridden), str(cfg.power.budget_ua),
+                          f"0 (off) or at least cell.reset_ua ({cfg.cell.reset_ua})")
     for key in ("bank_budget_ua",):
         if a.bank_budget_ua < cfg.cell.reset_ua:
             raise ConfigError(_where(source, f"array.{key}", overridden), str(a.bank_budget_ua),
@@ -173,4 +178,9 @@ def load_config(
         items = [parse_assignment(s) for s in overrides]
     for key, value in items:
         set_dotted(data, key, value)
-    return validate(data, name, {k for k, _ in items})
+    cfg = validate(data, name, {k for k, _ in items})
+    trace = cfg.workload.trace
+    if trace and isinstance(source, (str, Path)) and not Path(trace).is_absolute():
+        # A trace named in a config file is found next to that file.
+        cfg.workload.trace = str(Path(source).parent / trace)
+    return cfg

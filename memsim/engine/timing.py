@@ -24,6 +24,10 @@ from typing import Iterable, Iterator
 import numpy as np
 import simpy
 
+from memsim.engine.erase_agent import OUT_OF_PLACE, WAIT, EraseAgent
+from memsim.engine.refresh_agent import URGENT, RefreshAgent
+from memsim.policy.refresh import RefreshPlan
+from memsim.policy.write.bits import popcount_rows
 from memsim.policy.writepath import WritePath
 from memsim.tech.array import AddressMap
 from memsim.tech.cell import CellTech
@@ -47,11 +51,18 @@ class TimingTotals:
     read_pj: float = 0.0
     set_pj: float = 0.0
     reset_pj: float = 0.0
+    mlc_pj: float = 0.0              # program-and-verify energy of multi-level cells
     user_set_cells: int = 0
     user_reset_cells: int = 0
     move_cells: int = 0
     bank_busy_ns: np.ndarray = field(default_factory=lambda: np.empty(0))
     user_write_ns: float = 0.0       # sum of write service (program) times, ns
+    refresh_busy_ns: float = 0.0     # bank time spent on refresh operations, ns
+    power_wait_ns: float = 0.0       # time writes waited for programming current, ns
+    cancellations: int = 0
+    cancelled_pj: float = 0.0        # programming energy of aborted writes, pJ
+    cancelled_cells: int = 0         # cells programmed by aborted writes
+    pauses: int = 0
 
     @property
     def requests(self) -> int:
@@ -96,7 +107,8 @@ class TimingEngine:
         The write path (leveler, write scheme, stored content, wear).
     """
 
-    def __init__(self, cfg, source: Iterable[Chunk], path: WritePath) -> None:
+    def __init__(self, cfg, source: Iterable[Chunk], path: WritePath,
+                 refresh: RefreshPlan | None = None, rng: np.random.Generator | None = None) -> None:
         self.cfg = cfg
         self.source = source
         self.path = path
@@ -106,6 +118,16 @@ class TimingEngine:
         self.line_bits = a.line_bytes * 8
         self.closed = cfg.workload.arrival == "closed"
         self.totals = TimingTotals(bank_busy_ns=np.zeros(self.amap.total_banks))
+        self.plan = refresh
+        self.rng = rng if rng is not None else np.random.default_rng(cfg.run.seed + 1)
+        self.agent: RefreshAgent | None = None
+        c, p = cfg.controller, cfg.power
+        # Cells one round may drive: the bank's budget, or less if the shared
+        # budget is smaller.
+        self.round_budget_ua = min(a.bank_budget_ua, p.budget_ua) if p.budget_ua > 0 else a.bank_budget_ua
+        self.out_of_place = path.scheme.out_of_place
+        self.extended = c.write_cancel or c.write_pause or p.budget_ua > 0 or self.out_of_place
+        self.erase = EraseAgent(self) if self.out_of_place else None
 
     # ------------------------------------------------------------ preparation
     def _prepare(self, chunk: Chunk) -> _Prepared:
@@ -132,34 +154,69 @@ class TimingEngine:
 
         wb = self.path.apply(chunk.line[w_idx], None if chunk.data is None else chunk.data[w_idx])
         w_ch, w_bank, _ = self.amap.locate(wb.phys)
-        program = self.cell.program_ns(wb.n_set, wb.n_reset, a.bank_budget_ua)
         moves = wb.user < 0
+        budget = self.round_budget_ua
+        if wb.program_ns is not None:             # multi-level cells: program-and-verify
+            program = wb.program_ns
+            pj = wb.program_pj
+            tot.mlc_pj += float(pj.sum())
+            cells = wb.n_set + wb.n_reset
+            per_round = max(1, int(budget // cell.reset_ua))
+            current = np.minimum(cells, per_round) * cell.reset_ua
+            rr = sr = np.zeros(cells.size, np.int64)           # no pause points inside
+        else:
+            program = self.cell.program_ns(wb.n_set, wb.n_reset, budget)
+            pj = cell.program_pj(wb.n_set, wb.n_reset)
+            if not self.out_of_place:     # block erase: counted when the placement is known
+                tot.set_pj += float(wb.n_set.sum()) * cell.set_pj
+                tot.reset_pj += float(wb.n_reset.sum()) * cell.reset_pj
+            cells = wb.n_set + wb.n_reset
+            per_reset, per_set = cell.cells_per_round(budget)
+            rr, sr = -(-wb.n_reset // per_reset), -(-wb.n_set // per_set)
+            # A write holds the peak current of its two phases while it programs.
+            current = np.maximum(np.minimum(wb.n_reset, per_reset) * cell.reset_ua,
+                                 np.minimum(wb.n_set, per_set) * cell.set_ua)
         pre_read = self.path.scheme.pre_read
         # A move reads its source line, then programs the destination.
-        service = program + np.where(moves | pre_read, cell.read_ns, 0.0)
+        pre = np.where(moves | pre_read, cell.read_ns, 0.0)
+        service = program + pre
         extra_bits = self.line_bits + self.path.scheme.flag_cells
         tot.read_pj += (int(moves.sum()) + (int((~moves).sum()) if pre_read else 0)) * extra_bits * cell.read_pj
-        tot.set_pj += float(wb.n_set.sum()) * cell.set_pj
-        tot.reset_pj += float(wb.n_reset.sum()) * cell.reset_pj
-        tot.user_set_cells += int(wb.n_set[~moves].sum())
-        tot.user_reset_cells += int(wb.n_reset[~moves].sum())
+        if not self.out_of_place:
+            tot.user_set_cells += int(wb.n_set[~moves].sum())
+            tot.user_reset_cells += int(wb.n_reset[~moves].sum())
         tot.move_cells += int(wb.n_set[moves].sum() + wb.n_reset[moves].sum())
         tot.move_writes += int(moves.sum())
         tot.meta_writes += wb.meta_writes
         tot.user_write_ns += float(service[~moves].sum())
+        if self.agent is not None:
+            self.agent.note_writes(chunk.time_ns[w_idx[wb.after]] if w_idx.size else np.empty(0), wb.phys)
 
         # Admission entries in arrival order: (time, is_read, bank, item).
-        # Read item: (local index, channel, row).  Write item: (local index or
-        # -1 for a move, channel, service ns, uses bus).  A write's moves
-        # follow it (stable order by position in the chunk).
+        # Read item: (local index, channel, row, physical line).  Write item:
+        # local index (-1 for a move), channel, service ns, uses bus, current
+        # uA, pre-read ns, RESET rounds, SET rounds, programming pJ, cells,
+        # physical line.
+        # A write's moves follow it (stable order by position in the chunk).
         t = chunk.time_ns
         w_req = np.where(moves, -1, w_idx[np.clip(wb.user, 0, None)] if w_idx.size else 0)
         w_pos = w_idx[wb.after] if w_idx.size else np.empty(0, np.int64)
         pos = np.concatenate([r_idx, w_pos])
         order = np.argsort(pos, kind="stable")
         nr = r_idx.size
-        items = (list(zip(r_idx.tolist(), r_ch.tolist(), r_row.tolist()))
-                 + list(zip(w_req.tolist(), w_ch.tolist(), service.tolist(), (~moves).tolist())))
+        w_cols = [w_req.tolist(), w_ch.tolist(), service.tolist(), (~moves).tolist(),
+                  current.tolist(), pre.tolist(), rr.tolist(), sr.tolist(), pj.tolist(),
+                  cells.tolist(), wb.phys.tolist()]
+        if self.out_of_place:
+            # Block erase: the cost of the out-of-place write (only the pulse
+            # opposite to the initial state, no pre-read) and of the in-place
+            # fallback (data-comparison counts); the bank picks at service.
+            o_set, o_reset = self.erase.oop_cost_from_ones(wb.ones)
+            o_ns = cell.program_ns(o_set, o_reset, budget)
+            w_cols.append(list(zip(o_ns.tolist(), o_set.tolist(), o_reset.tolist(),
+                                   wb.n_set.tolist(), wb.n_reset.tolist())))
+        items = (list(zip(r_idx.tolist(), r_ch.tolist(), r_row.tolist(), r_phys.tolist()))
+                 + list(zip(*w_cols)))
         ol = order.tolist()
         prep.entries = list(zip(t[pos[order]].tolist(), (order < nr).tolist(),
                                 np.concatenate([r_bank, w_bank])[order].tolist(),
@@ -175,6 +232,7 @@ class TimingEngine:
         self.wpend = [0] * nb          # writes waiting in a bank's inbox
         self.rq = [deque() for _ in range(nb)]
         self.wq = [deque() for _ in range(nb)]
+        self.fq = [deque() for _ in range(nb)]      # refresh operations
         self.idle: list = [None] * nb
         self.space: list = [None] * nb
         self.slot = None
@@ -182,9 +240,22 @@ class TimingEngine:
         self.in_flight = 0
         self.source_done = False
         self.prepared: list[_Prepared] = []
+        self.refresh_running = 0
+        if self.plan is not None:
+            self.agent = RefreshAgent(self, self.plan, self.rng)
         env.process(self._source())
         for b in range(nb):
             env.process(self._bank(b))
+        p = self.cfg.power
+        self.pools = []
+        if p.budget_ua > 0:
+            n_pools = self.cfg.array.channels if p.scope == "channel" else 1
+            self.pools = [simpy.Container(env, capacity=p.budget_ua, init=p.budget_ua)
+                          for _ in range(n_pools)]
+        if self.agent is not None and self.plan.active and np.isfinite(self.plan.scan_ns):
+            self.refresh_running = nb
+            for b in range(nb):
+                env.process(self.agent.scan(b))
         env.run()
         return self._finish()
 
@@ -265,8 +336,12 @@ class TimingEngine:
 
     def _bank(self, b: int):
         env = self.env
-        rq, wq, ib = self.rq[b], self.wq[b], self.inbox[b]
+        rq, wq, ib, fq = self.rq[b], self.wq[b], self.inbox[b], self.fq[b]
         rpend, wpend, space = self.rpend, self.wpend, self.space
+        scrub = self.agent.on_read if (self.agent is not None and self.plan.policy == "scrub") else None
+        tot = self.totals
+        extended = self.extended
+        erase = self.erase
         c = self.cfg.controller
         high, low, idle_writes = c.drain_high, c.drain_low, c.idle_writes
         burst = self.cfg.array.burst_ns
@@ -276,6 +351,7 @@ class TimingEngine:
         timeout = env.timeout
         draining = False
         open_row = -1
+        streak = 0          # refreshes served in a row while reads waited
         while True:
             now = env._now
             # Admit what has arrived (inlined: this loop is the hot path).
@@ -291,8 +367,26 @@ class TimingEngine:
                 draining = False
             if not draining and len(wq) >= high:
                 draining = True
-            if draining or (wq and not rq and (idle_writes or (self.source_done and not ib))):
-                prep, (idx, ch, service, uses_bus) = wq.popleft()
+            if fq and not draining and (not rq or (len(fq) >= URGENT and streak < URGENT)):
+                # Refresh when no read waits, or when refreshes pile up; at
+                # most URGENT of them in a row while reads wait.
+                prep, item = fq.popleft()
+                streak = streak + 1 if rq else 0
+                if extended:
+                    yield from self._write(b, prep, item, False, True)
+                    continue
+                dur = item[2]
+                idx = item[0]
+                tot.refresh_busy_ns += dur
+            elif draining or (wq and not rq and (idle_writes or (self.source_done and not ib))):
+                prep, item = wq.popleft()
+                if extended:
+                    if space[b] is not None:
+                        sp, space[b] = space[b], None
+                        sp.succeed()
+                    yield from self._write(b, prep, item, draining, False)
+                    continue
+                idx, ch, service, uses_bus = item[:4]
                 if uses_bus:
                     start = bus_free[ch] if bus_free[ch] > now else now
                     bus_free[ch] = start + burst
@@ -300,7 +394,10 @@ class TimingEngine:
                 else:
                     dur = service
             elif rq:
-                prep, (idx, ch, row) = rq.popleft()
+                prep, (idx, ch, row, phys) = rq.popleft()
+                streak = 0
+                if scrub is not None:
+                    scrub(b, phys, now)
                 start = now + (hit_ns if (row >= 0 and row == open_row) else read_ns)
                 open_row = row
                 if bus_free[ch] > start:
@@ -308,10 +405,17 @@ class TimingEngine:
                 bus_free[ch] = start + burst
                 dur = start + burst - now
             elif ib:
+                # Idle until the next arrival: clean erase blocks meanwhile.
+                if erase is not None and erase.wants_idle_clean(b):
+                    yield from erase.clean(b, yield_to_reads=True)
+                    continue
                 yield timeout(ib[0][0] - now)
                 continue
             else:
-                if self.source_done and not wq:
+                if erase is not None and erase.wants_idle_clean(b):
+                    yield from erase.clean(b, yield_to_reads=True)
+                    continue
+                if self.source_done and not wq and not fq and not self.refresh_running:
                     return
                 ev = self.idle[b] = _Wake(env)
                 yield ev
@@ -330,6 +434,146 @@ class TimingEngine:
                     ev, self.slot = self.slot, None
                     ev.succeed()
 
+    def _next_read(self, b: int, now: float, end: float) -> float | None:
+        """Arrival time of the first read that reaches bank ``b`` before ``end``."""
+        if self.rq[b]:
+            return now
+        for t, is_read, _, _ in self.inbox[b]:
+            if t >= end:
+                return None
+            if is_read:
+                return t
+        return None
+
+    def _write(self, b: int, prep, item: tuple, draining: bool, refresh: bool):
+        """One write, move or refresh with power budget, cancellation and pausing.
+
+        Cancellation (Qureshi, Franceschini and Lastras-Montano, HPCA 2010):
+        outside a drain, a user write is aborted when a read arrives at the
+        bank before it has done ``cancel_before`` of its programming; it goes
+        back to the head of the write queue and restarts (its data crosses
+        the bus again); the work done is wasted and counted in energy and
+        wear.  Pausing (same paper): the write stops at the first programming
+        round boundary after the read arrives and the rest is re-queued at
+        the head of the queue; nothing is wasted.  With a power budget, the
+        write first waits until its peak current is free in the shared pool.
+        """
+        env, tot, c, cell = self.env, self.totals, self.cfg.controller, self.cell
+        idx, ch, service, uses_bus, cur, pre, rr, sr, pj, cells, phys = item[:11]
+        if len(item) > 11:
+            # Block erase: clean first if the pool is low, then place.
+            er = self.erase
+            while er.pools[b].need_erase():
+                if not (yield from er.clean(b)):
+                    break
+            while True:
+                # With block erase the leveler is "none": the write path's
+                # line is the logical line, the pool decides where it goes.
+                phys, mode = er.place(b, item[10])
+                if mode != WAIT:
+                    break
+                if not (yield from er.clean(b)):
+                    raise RuntimeError("block erase: no initialized line and nothing to clean")
+            o_ns, o_set, o_reset, i_set, i_reset = item[11]
+            if mode == OUT_OF_PLACE:
+                service, pre, n_set, n_reset = o_ns, 0.0, o_set, o_reset
+            else:
+                n_set, n_reset = i_set, i_reset
+            tot.set_pj += n_set * cell.set_pj
+            tot.reset_pj += n_reset * cell.reset_pj
+            tot.user_set_cells += n_set
+            tot.user_reset_cells += n_reset
+            per_reset, per_set = cell.cells_per_round(self.round_budget_ua)
+            cur = max(min(n_reset, per_reset) * cell.reset_ua, min(n_set, per_set) * cell.set_ua)
+            rr = sr = 0            # no cancellation or pausing of placed writes
+        t0 = env.now
+        pool = self.pools[ch if len(self.pools) > 1 else 0] if self.pools else None
+        need = min(cur, pool.capacity) if pool is not None else 0.0
+        if need > 0:
+            yield pool.get(need)
+            tot.power_wait_ns += env.now - t0
+        now = env.now
+        lead = 0.0
+        if uses_bus:
+            bus_free = self.bus_free
+            start = bus_free[ch] if bus_free[ch] > now else now
+            bus_free[ch] = start + self.cfg.array.burst_ns
+            lead = bus_free[ch] - now
+        prog_start = now + lead + pre
+        end = now + lead + service
+        stop, again = end, None
+        if idx >= 0 and not draining and (c.write_cancel or c.write_pause) and len(item) <= 11:
+            t_r = self._next_read(b, now, end)
+            if t_r is not None:
+                span = end - prog_start
+                if c.write_cancel and t_r < prog_start + c.cancel_before * span:
+                    stop = t_r
+                    done = max(0.0, stop - prog_start) / span if span > 0 else 0.0
+                    tot.cancellations += 1
+                    tot.cancelled_pj += done * pj
+                    wasted = int(round(done * cells))
+                    tot.cancelled_cells += wasted
+                    self.path.line_cells[phys] += wasted
+                    again = (idx, ch, service, True, cur, pre, rr, sr, pj, cells, phys)
+                elif c.write_pause and rr + sr > 0 and t_r > prog_start:
+                    e = t_r - prog_start
+                    rns, sns = cell.reset_ns, cell.set_ns
+                    if e < rr * rns:
+                        k = -(-e // rns)
+                        boundary, left = k * rns, (rr - int(k), sr)
+                    else:
+                        j = -(-(e - rr * rns) // sns)
+                        boundary, left = rr * rns + j * sns, (0, sr - int(j))
+                    if left[0] + left[1] > 0:
+                        stop = prog_start + boundary
+                        tot.pauses += 1
+                        rest = left[0] * rns + left[1] * sns
+                        again = (idx, ch, rest, False, cur, 0.0, left[0], left[1], 0.0, 0, phys)
+        dur = stop - now
+        self.totals.bank_busy_ns[b] += stop - t0
+        if refresh:
+            tot.refresh_busy_ns += dur
+        yield env.timeout(dur)
+        if need > 0:
+            yield pool.put(need)
+        if again is not None:
+            self.wq[b].appendleft((prep, again))
+        elif idx >= 0:
+            done_t = env.now
+            prep.finish[idx] = done_t
+            prep.lat[idx] = done_t - prep.arrival[idx]
+            self.in_flight -= 1
+            if self.slot is not None:
+                ev, self.slot = self.slot, None
+                ev.succeed()
+
+    def refresh_cost(self, lines: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """(service ns, energy pJ, cells programmed, current uA) of refreshing ``lines``.
+
+        A refresh reads the line and reprograms its drifting cells: the RESET
+        (amorphous) cells of an SLC line, every cell above the lowest level
+        of a multi-level line.  Wear is counted on the write path's lines.
+        """
+        cell, path = self.cell, self.path
+        stored = path.stored[lines]
+        read_pj = (self.line_bits + path.scheme.flag_cells) * cell.read_pj
+        budget = self.round_budget_ua
+        if path.mlc is not None:
+            cost = path.mlc.cost(np.zeros_like(stored), stored)
+            program, energy, cells = cost.program_ns, cost.energy_pj, cost.pulses
+            current = np.minimum(cost.cells, max(1, int(budget // cell.reset_ua))) * cell.reset_ua
+        else:
+            n_reset = self.line_bits - popcount_rows(stored)
+            program = cell.program_ns(np.zeros_like(n_reset), n_reset, budget)
+            energy = n_reset * cell.reset_pj
+            cells = n_reset
+            current = np.minimum(n_reset, cell.cells_per_round(budget)[0]) * cell.reset_ua
+            if path.cell_wear is not None:
+                path.cell_wear[lines, :self.line_bits] += np.unpackbits(~stored, axis=1)
+        np.add.at(path.line_writes, lines, 1)
+        np.add.at(path.line_cells, lines, cells)
+        return program + cell.read_ns, energy + read_pj, cells, current
+
     def _finish(self) -> TimingTotals:
         tot = self.totals
         if self.prepared:
@@ -338,4 +582,6 @@ class TimingEngine:
             tot.finish_ns = np.concatenate([np.asarray(p.finish, float) for p in self.prepared])
             tot.arrival_ns = np.concatenate([np.asarray(p.arrival, float) for p in self.prepared])
         tot.simulated_ns = float(np.nanmax(tot.finish_ns)) if tot.finish_ns.size else 0.0
+        if self.agent is not None:
+            self.agent.finish(tot.simulated_ns)
         return tot

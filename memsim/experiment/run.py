@@ -10,13 +10,12 @@ import numpy as np
 from memsim import __version__
 from memsim.config import RunConfig, load_config
 from memsim.engine.timing import TimingEngine, TimingTotals
-from memsim.errors import ConfigError
 from memsim.metrics.result import RunResult, latency_histogram, latency_stats
-from memsim.policy.leveling.base import Leveler
-from memsim.policy.write import SCHEMES, make_scheme
+from memsim.experiment.build import build_path, build_source, check_names, source_fields
+from memsim.engine.refresh_agent import RefreshAgent
+from memsim.experiment.lifetime import lifetime_fields
+from memsim.policy.refresh import plan_refresh
 from memsim.policy.writepath import WritePath
-from memsim.workload.content import DataModel
-from memsim.workload.synthetic import SyntheticSource
 
 
 def resolve(config: str | Path | Mapping | RunConfig | None, overrides: Mapping[str, Any] | None = None,
@@ -27,18 +26,8 @@ def resolve(config: str | Path | Mapping | RunConfig | None, overrides: Mapping[
     """
     ov = {k.replace("__", "."): v for k, v in (overrides or {}).items()}
     cfg = load_config(config, ov)
-    if cfg.write.scheme not in SCHEMES:
-        where = "--set write.scheme" if "write.scheme" in ov else "write.scheme"
-        raise ConfigError(where, repr(cfg.write.scheme), "one of " + ", ".join(SCHEMES))
+    check_names(cfg, "--set " if "write.scheme" in ov else "")
     return cfg
-
-
-def build_path(cfg: RunConfig, rng: np.random.Generator) -> WritePath:
-    leveler = Leveler(cfg.footprint, rng)
-    scheme = make_scheme(cfg.write.scheme, cfg.array.line_bytes, cfg.write.word_bits)
-    w = cfg.workload
-    data = DataModel(w.data, cfg.array.line_bytes, w.flip_fraction, w.one_fraction)
-    return WritePath(leveler, scheme, data, rng)
 
 
 def sampled_in_system(arrival: np.ndarray, finish: np.ndarray, horizon: float,
@@ -72,13 +61,15 @@ def summarize(cfg: RunConfig, tot: TimingTotals, path: WritePath) -> dict[str, A
     }
     s.update(latency_stats(lat[op == 0], "read_latency"))
     s.update(latency_stats(lat[op == 1], "write_latency"))
-    energy = tot.read_pj + tot.set_pj + tot.reset_pj
+    energy = tot.read_pj + tot.set_pj + tot.reset_pj + tot.mlc_pj + tot.cancelled_pj
     bits = n * line_bytes * 8
     s.update({
         "energy_pj": energy,
         "energy_read_pj": tot.read_pj,
         "energy_set_pj": tot.set_pj,
         "energy_reset_pj": tot.reset_pj,
+        "energy_mlc_program_pj": tot.mlc_pj,
+        "energy_cancelled_pj": tot.cancelled_pj,
         "energy_per_bit_pj": energy / bits if bits else 0.0,
         "cells_programmed_per_write": (tot.user_set_cells + tot.user_reset_cells) / tot.writes
         if tot.writes else 0.0,
@@ -87,8 +78,56 @@ def summarize(cfg: RunConfig, tot: TimingTotals, path: WritePath) -> dict[str, A
         "bank_utilization": float(tot.bank_busy_ns.mean() / sim) if sim > 0 else 0.0,
         "mean_in_system": sampled_in_system(tot.arrival_ns, tot.finish_ns, sim),
         "leveling_move_writes": tot.move_writes,
+        "write_cancellations": tot.cancellations,
+        "cancelled_cells": tot.cancelled_cells,
+        "write_pauses": tot.pauses,
+        "power_wait_ns": tot.power_wait_ns,
+        "power_wait_per_write_ns": tot.power_wait_ns / tot.writes if tot.writes else 0.0,
+        "cells_per_ns": (tot.user_set_cells + tot.user_reset_cells + tot.move_cells) / sim
+        if sim > 0 else 0.0,
     })
+    s.update(lifetime_fields(cfg, path, tot.writes * line_bytes / sim * 1e9 if sim > 0 else 0.0))
     return s
+
+
+def refresh_fields(cfg: RunConfig, tot: TimingTotals, agent: RefreshAgent | None,
+                   summary: dict[str, Any]) -> dict[str, Any]:
+    """Refresh cost and error keys of the summary (energy total includes refresh)."""
+    plan = agent.plan
+    sim = tot.simulated_ns
+    n = agent.refreshes
+    busy = float(tot.bank_busy_ns.sum())
+    all_cells = float(agent.engine.path.line_cells.sum())
+    energy = summary["energy_pj"] + agent.energy_pj
+    bits = summary["requests"] * cfg.array.line_bytes * 8
+    return {
+        "energy_refresh_pj": agent.energy_pj,
+        "energy_pj": energy,
+        "energy_per_bit_pj": energy / bits if bits else 0.0,
+        "refresh_policy": plan.policy,
+        "refresh_age_needed_s": plan.age_s,
+        "refresh_interval_s": plan.interval_s,
+        "refreshes": n,
+        "refreshes_per_s": n / sim * 1e9 if sim > 0 else 0.0,
+        "refresh_bandwidth_share": tot.refresh_busy_ns / busy if busy > 0 else 0.0,
+        "refresh_energy_share": agent.energy_pj / energy if energy > 0 else 0.0,
+        "refresh_wear_share": agent.cells / all_cells if all_cells > 0 else 0.0,
+        "rber_at_refresh": agent.rber_sum / n if n else float(
+            plan.rber(plan.interval_s) if np.isfinite(plan.interval_s) else np.nan),
+        "uncorrectable_lines": agent.expected_fail,
+        "line_scale": plan.scale,
+    }
+
+
+def erase_fields(cfg: RunConfig, engine: TimingEngine, summary: dict[str, Any]) -> dict[str, Any]:
+    """Block erase-ahead keys (write amplification 1 for in-place schemes)."""
+    if engine.erase is None:
+        return {"write_amplification": 1.0 + summary["leveling_move_writes"] / max(1, summary["writes"])}
+    e = engine.erase.summary()
+    energy = summary["energy_pj"] + e["energy_erase_pj"]
+    bits = summary["requests"] * cfg.array.line_bytes * 8
+    return {**e, "energy_pj": energy, "energy_per_bit_pj": energy / bits if bits else 0.0,
+            "erase_energy_share": e["energy_erase_pj"] / energy if energy > 0 else 0.0}
 
 
 def simulate(config: str | Path | Mapping | RunConfig | None = None, **overrides: Any) -> RunResult:
@@ -103,9 +142,14 @@ def simulate(config: str | Path | Mapping | RunConfig | None = None, **overrides
     t0 = time.perf_counter()
     rng = np.random.default_rng(cfg.run.seed)
     path = build_path(cfg, rng)
-    source = SyntheticSource(cfg.workload, cfg.footprint, rng, cfg.run.chunk_requests)
-    tot = TimingEngine(cfg, source, path).run()
+    source = build_source(cfg, rng)
+    plan = plan_refresh(cfg)
+    engine = TimingEngine(cfg, source, path, plan, np.random.default_rng([cfg.run.seed, 1]))
+    tot = engine.run()
     summary = summarize(cfg, tot, path)
+    summary.update(refresh_fields(cfg, tot, engine.agent, summary))
+    summary.update(erase_fields(cfg, engine, summary))
+    summary.update(source_fields(source))
     tables = {"latency_histogram": latency_histogram(tot.latency_ns, tot.op)}
     return RunResult(summary, tables, cfg.model_dump(), cfg.run.seed, __version__,
                      time.perf_counter() - t0)

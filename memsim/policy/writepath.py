@@ -19,6 +19,7 @@ import numpy as np
 
 from memsim.policy.leveling.base import Leveler
 from memsim.policy.write.base import WriteScheme
+from memsim.policy.write.bits import popcount_rows
 from memsim.workload.content import DataModel
 
 
@@ -38,16 +39,22 @@ class WriteBatch:
     user: np.ndarray
     after: np.ndarray
     meta_writes: int = 0      # leveler metadata writes (counted, not placed)
+    program_ns: np.ndarray | None = None   # MLC: program-and-verify time per write
+    program_pj: np.ndarray | None = None   # MLC: pulse + verify energy per write
+    ones: np.ndarray | None = None         # 1 bits of the stored line after each write
 
     @property
     def is_move(self) -> np.ndarray:
         return self.user < 0
 
 
-def assign_rounds(dst: np.ndarray, src: np.ndarray) -> np.ndarray:
+def assign_rounds(dst: np.ndarray, src: np.ndarray, group: np.ndarray | None = None) -> np.ndarray:
     """Round of each event so that a round touches distinct lines and every
-    line's events keep their order.  ``src`` is -1 for events that only
-    write ``dst``.
+    line's events keep their order.
+
+    ``src`` is -1 for events that only write ``dst``.  Consecutive events
+    with the same ``group`` id (>= 0) form one parallel step (a swap: every
+    source is read before any destination is written) and share a round.
     """
     n = dst.size
     if n == 0:
@@ -61,16 +68,24 @@ def assign_rounds(dst: np.ndarray, src: np.ndarray) -> np.ndarray:
         rounds = np.empty(n, dtype=np.int64)
         rounds[order] = np.arange(n) - grp_start
         return rounds
+    if group is None:
+        group = np.full(n, -1, dtype=np.int64)
     last: dict[int, int] = {}
     rounds = np.empty(n, dtype=np.int64)
     get = last.get
-    for k, (d, s) in enumerate(zip(dst.tolist(), src.tolist())):
-        r = get(d, -1)
-        if s >= 0:
-            r = max(r, get(s, -1))
-            last[s] = r + 1
-        last[d] = r + 1
-        rounds[k] = r + 1
+    d_l, s_l, g_l = dst.tolist(), src.tolist(), group.tolist()
+    k = 0
+    while k < n:
+        j = k + 1
+        if g_l[k] >= 0:
+            while j < n and g_l[j] == g_l[k]:
+                j += 1
+        lines = d_l[k:j] + [x for x in s_l[k:j] if x >= 0]
+        r = max(get(x, -1) for x in lines) + 1
+        for x in lines:
+            last[x] = r
+        rounds[k:j] = r
+        k = j
     return rounds
 
 
@@ -78,7 +93,8 @@ class WritePath:
     """Stored content and wear of the modeled physical lines."""
 
     def __init__(self, leveler: Leveler, scheme: WriteScheme, data: DataModel,
-                 rng: np.random.Generator, cell_wear: bool = True) -> None:
+                 rng: np.random.Generator, cell_wear: bool = True, mlc=None) -> None:
+        self.mlc = mlc            # MlcProgrammer for multi-level cells, None for SLC
         self.leveler = leveler
         self.scheme = scheme
         self.data = data
@@ -89,8 +105,10 @@ class WritePath:
         self.flags = np.zeros((n, scheme.flag_cells), dtype=np.uint8)
         self.line_writes = np.zeros(n, dtype=np.int64)
         self.line_cells = np.zeros(n, dtype=np.int64)       # cells programmed per line
+        # Per-cell counters of SLC programs (for MLC, wear is counted in
+        # pulses per line, ``line_cells``).
         self.cell_wear = (np.zeros((n, self.line_bits + scheme.flag_cells), dtype=np.uint32)
-                          if cell_wear else None)
+                          if cell_wear and mlc is None else None)
         self.user_writes = 0
         self.move_writes = 0
         self.meta_writes = 0
@@ -122,7 +140,11 @@ class WritePath:
             data = self.data.new(self.rng, np.empty((n, self.scheme.line_bytes), np.uint8))
         n_set = np.zeros(n + m, dtype=np.int64)
         n_reset = np.zeros(n + m, dtype=np.int64)
-        rounds = assign_rounds(dst, src)
+        ones = np.zeros(n + m, dtype=np.int64)
+        mlc_ns = np.zeros(n + m) if self.mlc is not None else None
+        mlc_pj = np.zeros(n + m) if self.mlc is not None else None
+        group = np.where(user < 0, after, -1)
+        rounds = assign_rounds(dst, src, group)
         by_round = np.argsort(rounds, kind="stable")
         bounds = np.searchsorted(rounds[by_round], np.arange(rounds.max(initial=-1) + 2))
         for r in range(bounds.size - 1):
@@ -146,7 +168,13 @@ class WritePath:
             self.flags[d] = enc.flags
             ns, nr = enc.n_set, enc.n_reset
             n_set[ev], n_reset[ev] = ns, nr
+            ones[ev] = popcount_rows(enc.stored)
             self.line_writes[d] += 1
+            if self.mlc is not None:
+                cost = self.mlc.cost(old, enc.stored, full=self.scheme.name == "full_line")
+                mlc_ns[ev], mlc_pj[ev] = cost.program_ns, cost.energy_pj
+                self.line_cells[d] += cost.pulses
+                continue
             self.line_cells[d] += ns + nr
             if self.cell_wear is not None:
                 prog = np.unpackbits(enc.set_mask | enc.reset_mask, axis=1)
@@ -156,7 +184,7 @@ class WritePath:
         self.user_writes += n
         self.move_writes += m
         self.meta_writes += mv.cost_writes
-        return WriteBatch(dst, n_set, n_reset, user, after, mv.cost_writes)
+        return WriteBatch(dst, n_set, n_reset, user, after, mv.cost_writes, mlc_ns, mlc_pj, ones)
 
     def bit_profile(self) -> np.ndarray:
         """Programs per bit position (data cells then flag cells), summed over lines."""

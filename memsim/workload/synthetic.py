@@ -11,17 +11,25 @@ from typing import Callable, Iterator
 
 import numpy as np
 
+from memsim.errors import ConfigError
+from memsim.workload import attacks
 from memsim.workload.chunk import READ, WRITE, Chunk
 
 AddressFn = Callable[[np.random.Generator, int, int], np.ndarray]
 
 
 class AddressPattern:
-    """Stateful address generator over ``footprint`` lines."""
+    """Stateful address generator over ``footprint`` lines.
+
+    The attack patterns (``repeated_address``, ``birthday_attack``,
+    ``hot_set``) come from :mod:`memsim.workload.attacks`; ``hot_set`` sends
+    ``hot_share`` of the accesses to ``hot_lines`` fixed lines.
+    """
 
     def __init__(self, kind: str, footprint: int, rng: np.random.Generator, *,
                  zipf_exponent: float = 1.0, hot_fraction: float = 0.1,
-                 hot_share: float = 0.9, stride_lines: int = 1) -> None:
+                 hot_share: float = 0.9, stride_lines: int = 1, attack_line: int = 0,
+                 burst: int = 1000, hot_lines: int = 16) -> None:
         self.kind = kind
         self.footprint = footprint
         self.pos = 0
@@ -37,6 +45,20 @@ class AddressPattern:
         elif kind == "hotspot":
             self.n_hot = max(1, int(round(hot_fraction * footprint)))
             self.hot_lines = rng.permutation(footprint)
+        elif kind == "repeated_address":
+            if not 0 <= attack_line < footprint:
+                raise ConfigError("workload.attack_line", repr(attack_line),
+                                  f"a line index in [0, {footprint - 1}] (the footprint)")
+            self.attack_line = attack_line
+        elif kind == "birthday_attack":
+            self.burst = burst
+            self.done = 0          # writes issued so far (bursts continue across draws)
+            self.last = -1         # line of the burst left open by the previous draw
+        elif kind == "hot_set":
+            if hot_lines > footprint:
+                raise ConfigError("workload.hot_lines", repr(hot_lines),
+                                  f"at most the footprint, {footprint} lines")
+            self.n_hot = hot_lines
         elif kind not in ("uniform", "sequential", "strided"):
             raise ValueError(f"unknown address pattern {kind}")
 
@@ -52,9 +74,26 @@ class AddressPattern:
             idx = np.where(hot, rng.integers(0, self.n_hot, size=n),
                            rng.integers(self.n_hot, max(self.n_hot + 1, f), size=n))
             return self.hot_lines[np.minimum(idx, f - 1)].astype(np.int64)
+        if self.kind in attacks.ATTACKS:
+            return self._attack(rng, n)
         step = 1 if self.kind == "sequential" else self.stride
         out = (self.pos + step * np.arange(n, dtype=np.int64)) % f
         self.pos = int((self.pos + step * n) % f)
+        return out
+
+    def _attack(self, rng: np.random.Generator, n: int) -> np.ndarray:
+        f = self.footprint
+        if self.kind == "repeated_address":
+            return attacks.repeated_address(rng, n, f, line=self.attack_line)
+        if self.kind == "hot_set":
+            return attacks.hot_set(rng, n, f, hot_lines=self.n_hot, hot_fraction=self.hot_share)
+        # Finish the burst the previous draw left open before drawing fresh lines.
+        head = np.full(min(n, (self.burst - self.done % self.burst) % self.burst), self.last,
+                       dtype=np.int64)
+        out = np.concatenate([head, attacks.birthday_attack(rng, n - head.size, f, burst=self.burst)])
+        self.done += n
+        if out.size:
+            self.last = int(out[-1])
         return out
 
 
@@ -116,7 +155,8 @@ class SyntheticSource:
         self.chunk = chunk_requests
         self.address = address or AddressPattern(
             wl.pattern, footprint, rng, zipf_exponent=wl.zipf_exponent,
-            hot_fraction=wl.hot_fraction, hot_share=wl.hot_share, stride_lines=wl.stride_lines)
+            hot_fraction=wl.hot_fraction, hot_share=wl.hot_share, stride_lines=wl.stride_lines,
+            attack_line=wl.attack_line, burst=wl.burst, hot_lines=wl.hot_lines)
         self.arrivals = Arrivals(wl.arrival, wl.interval_ns, wl.on_ns, wl.off_ns)
         self.footprint = footprint
 

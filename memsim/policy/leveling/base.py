@@ -39,7 +39,7 @@ class Moves:
     cost_writes: int = 0
 
     @staticmethod
-    def none() -> "Moves":
+    def none() -> Moves:
         e = np.empty(0, dtype=np.int64)
         return Moves(e, e.copy(), e.copy(), 0)
 

@@ -3,12 +3,13 @@ subclass, then one line in ``SCHEMES``."""
 from __future__ import annotations
 
 from memsim.policy.write.base import Encoded, WriteScheme
+from memsim.policy.write.block_erase import BlockErase
 from memsim.policy.write.data_comparison import DataComparison
 from memsim.policy.write.flip_n_write import FlipNWrite
 from memsim.policy.write.full_line import FullLine
 
 SCHEMES: dict[str, type[WriteScheme]] = {
-    cls.name: cls for cls in (FullLine, DataComparison, FlipNWrite)
+    cls.name: cls for cls in (FullLine, DataComparison, FlipNWrite, BlockErase)
 }
 
 

@@ -1,0 +1,299 @@
+"""Build the parts of a run from its config: leveler, write path, request source."""
+from __future__ import annotations
+
+from collections.abc import Iterable, Iterator
+
+import numpy as np
+
+from memsim.config import RunConfig
+from memsim.errors import ConfigError, TraceError
+from memsim.policy.leveling import Leveler, leveler_params, make_leveler
+from memsim.policy.write import SCHEMES, make_scheme
+from memsim.policy.writepath import WritePath
+from memsim.tech.mlc_write import MlcProgrammer
+from memsim.tech.models import mlc_cell
+from memsim.workload.chunk import WRITE, Chunk
+from memsim.workload.content import DataModel
+from memsim.workload.synthetic import SyntheticSource
+from memsim.workload.trace import TraceReader, read_trace
+
+
+def leveler_kwargs(cfg: RunConfig, name: str | None = None) -> dict:
+    """Config fields of ``[leveling]`` that scheme ``name`` takes."""
+    lv = cfg.leveling
+    name = name or lv.scheme
+    accepted = leveler_params(name)
+    kw: dict = {}
+    for key in accepted:
+        if key == "line_bits":
+            kw[key] = cfg.array.line_bytes * 8
+        elif key == "region_lines":
+            if lv.region_lines:
+                kw[key] = lv.region_lines
+        elif key == "inner":
+            if lv.inner != "none":
+                kw[key] = lv.inner
+        elif hasattr(lv, key):
+            kw[key] = getattr(lv, key)
+    if name == "bit_rotation" and lv.inner != "none":
+        kw["inner_params"] = leveler_kwargs(cfg, lv.inner)
+    return kw
+
+
+def build_leveler(cfg: RunConfig, rng: np.random.Generator) -> Leveler:
+    return make_leveler(cfg.leveling.scheme, cfg.footprint, rng, **leveler_kwargs(cfg))
+
+
+def check_names(cfg: RunConfig, where_prefix: str = "") -> None:
+    if cfg.write.scheme not in SCHEMES:
+        raise ConfigError(f"{where_prefix}write.scheme", repr(cfg.write.scheme),
+                          "one of " + ", ".join(SCHEMES))
+    if SCHEMES[cfg.write.scheme].out_of_place and cfg.leveling.scheme != "none":
+        raise ConfigError("leveling.scheme", repr(cfg.leveling.scheme),
+                          "none with write.scheme block_erase (its block pool remaps lines itself)")
+    if SCHEMES[cfg.write.scheme].out_of_place and cfg.cell.bits_per_cell > 1:
+        raise ConfigError("write.scheme", repr(cfg.write.scheme),
+                          "a per-cell scheme with multi-level cells (block_erase models SLC)")
+
+
+def build_path(cfg: RunConfig, rng: np.random.Generator) -> WritePath:
+    # Spare lines a leveler needs (e.g. the gap line) are physical lines
+    # beyond the footprint; the address map places them like any other.
+    leveler = build_leveler(cfg, rng)
+    scheme = make_scheme(cfg.write.scheme, cfg.array.line_bytes, cfg.write.word_bits)
+    w = cfg.workload
+    data = DataModel(w.data, cfg.array.line_bytes, w.flip_fraction, w.one_fraction)
+    mlc = None
+    if cfg.cell.bits_per_cell > 1:
+        mlc = MlcProgrammer(mlc_cell(cfg), cfg.array.bank_budget_ua, cfg.cell.reset_ua, rng)
+    return WritePath(leveler, scheme, data, rng, mlc=mlc)
+
+
+# ---------------------------------------------------------------- request source
+
+# Spawn keys of the source's own random streams.  The source never draws
+# from the write path's generator: a trace written from the source and
+# replayed then leaves the write path's draws (initial content, leveler
+# keys, MLC verify) exactly as the generator's run made them, so the two
+# runs agree number for number.
+_REQUEST_STREAM = 101
+_CONTENT_STREAM = 102
+_CONTENT_BLOCK = 4096        # lines of write content drawn at a time
+
+
+def source_streams(seed: int) -> tuple[np.random.Generator, np.random.Generator]:
+    """Generators of a run's requests and of its write content, from ``run.seed``."""
+    req, content = (np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(k,)))
+                    for k in (_REQUEST_STREAM, _CONTENT_STREAM))
+    return req, content
+
+
+class _StreamTraceError(TraceError):
+    """A TraceError that survives simpy re-raising it.
+
+    simpy re-raises a process's exception as ``type(e)(*e.args)``; a plain
+    UserError passes one message to ``Exception`` but takes three arguments,
+    so that copy would fail with a TypeError and the one-line message would
+    be lost.
+    """
+
+    def __init__(self, where: str, found: str, allowed: str) -> None:
+        super().__init__(where, found, allowed)
+        self.args = (where, found, allowed)
+
+    def __str__(self) -> str:
+        return f"{self.where}: found {self.found}; allowed: {self.allowed}"
+
+
+class _Content:
+    """Write content from the data model, drawn in fixed blocks of lines.
+
+    The k-th write of a stream gets the same content however the stream is
+    cut into chunks.  Only for models whose new content does not depend on
+    the old one (``flip`` content is drawn by the write path).
+    """
+
+    def __init__(self, model: DataModel, rng: np.random.Generator) -> None:
+        self.model = model
+        self.rng = rng
+        self.block = np.zeros((0, model.line_bytes), np.uint8)
+        self.pos = 0
+
+    def take(self, n: int) -> np.ndarray:
+        parts = [self.block[:0]]
+        while n > 0:
+            if self.pos == len(self.block):
+                self.block = self.model.new(
+                    self.rng, np.empty((_CONTENT_BLOCK, self.model.line_bytes), np.uint8))
+                self.pos = 0
+            k = min(n, len(self.block) - self.pos)
+            parts.append(self.block[self.pos:self.pos + k])
+            self.pos += k
+            n -= k
+        return parts[-1] if len(parts) == 2 else np.concatenate(parts)
+
+
+def _rechunk(chunks: Iterable[Chunk], size: int) -> Iterator[Chunk]:
+    """The same requests in chunks of exactly ``size`` (the last may be shorter).
+
+    The engines apply writes and look up reads chunk by chunk, so a
+    generator and the replay of its trace must cut the stream alike.
+    """
+    parts: list[Chunk] = []
+    held = 0
+    for ch in chunks:
+        if not parts and len(ch) == size:        # the usual case: nothing to do
+            yield ch
+            continue
+        if len(ch) == 0:
+            continue
+        parts.append(ch)
+        held += len(ch)
+        if held < size:
+            continue
+        whole = parts[0] if len(parts) == 1 else Chunk.concat(parts)
+        cut = held - held % size
+        for s in range(0, cut, size):
+            yield whole.take(slice(s, s + size))
+        rest = whole.take(slice(cut, None))
+        parts, held = ([rest] if len(rest) else []), len(rest)
+    if held:
+        yield parts[0] if len(parts) == 1 else Chunk.concat(parts)
+
+
+class RequestSource:
+    """A run's request stream, as the engines consume it.
+
+    Iterating yields chunks of exactly ``run.chunk_requests`` requests (the
+    last may be shorter) in arrival order.  Writes carry their content
+    (``Chunk.data``): the trace's own, or else drawn from the data model on
+    the source's content stream; with the ``flip`` model and no content in
+    the stream, ``data`` stays ``None`` and the write path draws the flips.
+
+    Attributes
+    ----------
+    reader:
+        The :class:`~memsim.workload.trace.TraceReader` of pattern ``trace``,
+        else None.
+    """
+
+    def __init__(self, chunks: Iterable[Chunk], chunk_requests: int, content: _Content | None,
+                 reader: TraceReader | None = None) -> None:
+        self.chunks = chunks
+        self.chunk_requests = chunk_requests
+        self.content = content
+        self.reader = reader
+
+    @property
+    def bad_lines(self) -> int:
+        """Malformed trace rows skipped so far (``workload.skip_bad``); 0 for synthetic streams."""
+        return self.reader.bad_lines if self.reader is not None else 0
+
+    def __iter__(self) -> Iterator[Chunk]:
+        try:
+            for ch in _rechunk(self.chunks, self.chunk_requests):
+                if self.content is not None and ch.data is None:
+                    w = np.flatnonzero(ch.op == WRITE)
+                    data = np.zeros((len(ch), self.content.model.line_bytes), np.uint8)
+                    data[w] = self.content.take(w.size)
+                    ch = Chunk(ch.time_ns, ch.op, ch.line, data)
+                yield ch
+        except TraceError as exc:
+            raise _StreamTraceError(exc.where, exc.found, exc.allowed) from None
+
+
+def build_source(cfg: RunConfig, rng: np.random.Generator | None = None, *,
+                 content: bool = True) -> RequestSource:
+    """The run's request stream: the synthetic generator, or a trace for pattern ``trace``.
+
+    Parameters
+    ----------
+    cfg:
+        The run config: ``[workload]``, ``run.seed``, ``run.chunk_requests``,
+        ``array.line_bytes`` and the footprint (trace lines must lie inside it).
+    rng:
+        Ignored.  The source draws from its own streams
+        (:func:`source_streams` of ``run.seed``), never from the generator
+        the write path draws from, so that a trace made from the generator
+        replays to the same run.
+    content:
+        Attach write content drawn from the data model where the stream has
+        none.  ``False`` when only the requests are wanted (a trace without
+        content, the wear engine's write stream).
+
+    Raises
+    ------
+    ConfigError
+        Pattern ``trace`` without ``workload.trace``.
+    TraceError
+        The trace file is missing or its header is bad (at once), or a row is
+        malformed (during iteration; names ``file:line``).
+    """
+    w = cfg.workload
+    req_rng, content_rng = source_streams(cfg.run.seed)
+    model = DataModel(w.data, cfg.array.line_bytes, w.flip_fraction, w.one_fraction)
+    filler = _Content(model, content_rng) if content and w.data != "flip" else None
+    if w.pattern != "trace":
+        src = SyntheticSource(w, cfg.footprint, req_rng, cfg.run.chunk_requests)
+        return RequestSource(src, cfg.run.chunk_requests, filler)
+    if not w.trace:
+        raise ConfigError("workload.trace", "nothing",
+                          "the path of a trace file when workload.pattern is 'trace'")
+    reader = read_trace(w.trace, chunk_size=cfg.run.chunk_requests, skip_bad=w.skip_bad,
+                        line_bytes=cfg.array.line_bytes, footprint=cfg.footprint)
+    if reader.has_data:          # reads the header now, outside the engine
+        filler = None
+    return RequestSource(reader, cfg.run.chunk_requests, filler, reader)
+
+
+def source_fields(source: RequestSource) -> dict[str, int]:
+    """Summary keys about the request source: ``trace_bad_lines`` for trace runs."""
+    if source.reader is None:
+        return {}
+    return {"trace_bad_lines": source.bad_lines}
+
+
+def write_stream(cfg: RunConfig, *, endless: bool = True,
+                 chunk: int | None = None) -> Iterator[np.ndarray]:
+    """Logical line indices (int64 arrays) of the workload's user writes, in order.
+
+    For synthetic patterns these are the writes of :func:`build_source`'s
+    stream (same seed, same lines as a timing run of the config), continued
+    past ``workload.requests`` when ``endless`` by the same generator run
+    on.  For pattern ``trace`` they
+    are the trace's writes, once (a trace has an end; a caller that needs
+    more calls again to replay it).  Hints and reads are left out; content
+    is not drawn.
+
+    Parameters
+    ----------
+    cfg:
+        The run config.
+    endless:
+        Synthetic patterns only: do not stop at ``workload.requests``.
+    chunk:
+        Requests per chunk read or generated (default ``run.chunk_requests``);
+        the arrays are the writes among them.
+
+    Raises
+    ------
+    TraceError
+        As :func:`build_source`.
+    """
+    size = chunk or cfg.run.chunk_requests
+    cfg = cfg.model_copy(update={"run": cfg.run.model_copy(update={"chunk_requests": size})})
+    done = 0
+    for ch in build_source(cfg, content=False):
+        done += len(ch)
+        yield ch.line[ch.op == WRITE]
+    if not endless or cfg.workload.pattern == "trace":
+        return
+    # The generator cuts its last chunk short, which changes the draws after
+    # it; go on with an endless generator of the same seed from that request.
+    wl = cfg.workload.model_copy(update={"requests": 1 << 62})
+    for ch in build_source(cfg.model_copy(update={"workload": wl}), content=False):
+        if done >= len(ch):
+            done -= len(ch)
+            continue
+        ch, done = ch.take(slice(done, None)), 0
+        yield ch.line[ch.op == WRITE]

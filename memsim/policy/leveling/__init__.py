@@ -1,0 +1,86 @@
+"""Wear levelers: logical -> physical line maps, found by name.
+
+Every scheme follows the contract in :mod:`memsim.policy.leveling.base`.
+Add a scheme by writing one module and one line in :data:`LEVELERS`; the CLI
+and config list the names from here.
+"""
+from __future__ import annotations
+
+import inspect
+
+import numpy as np
+
+from memsim.errors import ConfigError
+from memsim.policy.leveling.base import Leveler, LevelResult, Moves
+from memsim.policy.leveling.bit_rotation import BitRotation
+from memsim.policy.leveling.hot_cold_swap import HotColdSwap
+from memsim.policy.leveling.none import NoLeveling
+from memsim.policy.leveling.randomized_start_gap import RandomizedStartGap
+from memsim.policy.leveling.region_start_gap import RegionStartGap
+from memsim.policy.leveling.security_refresh import SecurityRefresh
+from memsim.policy.leveling.start_gap import StartGap
+
+LEVELERS: dict[str, type[Leveler]] = {
+    cls.name: cls
+    for cls in (NoLeveling, StartGap, RandomizedStartGap, RegionStartGap,
+                SecurityRefresh, HotColdSwap, BitRotation)
+}
+
+__all__ = [
+    "LEVELERS",
+    "LevelResult",
+    "Leveler",
+    "Moves",
+    "leveler_names",
+    "leveler_params",
+    "make_leveler",
+]
+
+
+def leveler_names() -> list[str]:
+    """Registered scheme names, sorted."""
+    return sorted(LEVELERS)
+
+
+def leveler_params(name: str) -> dict[str, object]:
+    """Keyword parameters of a scheme and their defaults."""
+    cls = _lookup(name)
+    sig = inspect.signature(cls.__init__)
+    return {p.name: p.default for p in sig.parameters.values()
+            if p.kind is inspect.Parameter.KEYWORD_ONLY}
+
+
+def _lookup(name: str) -> type[Leveler]:
+    try:
+        return LEVELERS[name]
+    except KeyError:
+        raise ConfigError("leveling.scheme", repr(name),
+                          ", ".join(leveler_names())) from None
+
+
+def make_leveler(name: str, n_logical: int, rng: np.random.Generator | None,
+                 **params: object) -> Leveler:
+    """Build scheme ``name`` over ``n_logical`` lines.
+
+    ``bit_rotation`` also takes ``inner`` (a scheme name) and
+    ``inner_params`` (a dict) for the line remapper underneath it.
+    Unknown parameters raise :class:`ConfigError`.
+    """
+    cls = _lookup(name)
+    params = dict(params)
+    if cls is BitRotation and "inner" in params:
+        inner_name = params.pop("inner")
+        inner_params = params.pop("inner_params", None) or {}
+        if not isinstance(inner_name, str) or inner_name == BitRotation.name:
+            raise ConfigError("leveling.inner", repr(inner_name),
+                              "a line remapping scheme name")
+        if not isinstance(inner_params, dict):
+            raise ConfigError("leveling.inner_params", repr(inner_params),
+                              "a table of parameters")
+        params["inner"] = make_leveler(inner_name, n_logical, rng, **inner_params)
+    allowed = leveler_params(name)
+    for key in params:
+        if key not in allowed:
+            raise ConfigError(f"leveling.{key}", repr(key),
+                              ", ".join(sorted(allowed)) or "no parameters")
+    return cls(n_logical, rng, **params)

@@ -1,0 +1,113 @@
+"""Refresh policies: when a line must be rewritten because its cells drift.
+
+The refresh age ``A`` is the line age (s, device time) at which the
+probability that the line holds more errors than its ECC corrects reaches
+``refresh.max_fail_prob`` (:func:`memsim.tech.drift.refresh_age`).
+
+Time scaling.  The timing engine simulates ``array.lines`` modeled lines that
+stand for ``S = device lines / modeled lines`` device lines each, while every
+bank sees the full request rate.  A device line therefore sees a modeled
+line's writes ``S`` times less often.  Running the modeled lines with ages
+scaled by ``S`` (a modeled line of simulated age ``a`` stands for device lines
+of age ``S a``) makes each bank's refresh operation rate equal to the
+device's: the bank refreshes ``S`` times more lines, each ``S`` times less
+often.  So a periodic refresh of period ``T`` runs every ``T / S`` of
+simulated time, and the drift-triggered policy refreshes a modeled line whose
+simulated age reaches ``A / S``.  Deterministic rewrite patterns keep their
+meaning: a line rewritten every ``P`` simulated ns is rewritten every ``S P``
+in the device.
+"""
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from memsim.tech.drift import error_table, refresh_age
+from memsim.tech.models import drift_params, mlc_cell
+from memsim.units import GIB, NS_PER_S
+
+POLICIES = ("none", "periodic", "drift", "scrub")
+
+
+@dataclass
+class RefreshPlan:
+    """Everything the engine needs to run a refresh policy.
+
+    Attributes
+    ----------
+    age_s:
+        Refresh age the design needs (device seconds; inf if never within the
+        drift law's window).
+    interval_s:
+        Period the policy refreshes with (``age_s`` for drift, the configured
+        interval for periodic, NaN for none and scrub).
+    scale:
+        Device lines per modeled line.
+    threshold_ns:
+        Simulated age at which the policy refreshes a line (``interval / S``).
+    """
+
+    policy: str
+    age_s: float
+    status: str
+    interval_s: float
+    scale: float
+    threshold_ns: float
+    scan_ns: float
+    bits_per_line: int
+    scrub_errors: int
+    start: str
+    log_age_grid: np.ndarray          # log10 device age, s
+    rber_grid: np.ndarray
+    p_fail_grid: np.ndarray
+
+    @property
+    def active(self) -> bool:
+        return self.policy in ("periodic", "drift")
+
+    def _interp(self, grid: np.ndarray, device_age_s: np.ndarray) -> np.ndarray:
+        x = np.log10(np.maximum(np.asarray(device_age_s, dtype=float), 1e-12))
+        return np.interp(x, self.log_age_grid, grid, left=grid[0], right=grid[-1])
+
+    def rber(self, device_age_s) -> np.ndarray:
+        """Raw bit error rate of a line of the given device age."""
+        return self._interp(self.rber_grid, device_age_s)
+
+    def p_fail(self, device_age_s) -> np.ndarray:
+        """Probability that a line of that age is uncorrectable."""
+        return self._interp(self.p_fail_grid, device_age_s)
+
+    def device_age_s(self, sim_age_ns) -> np.ndarray:
+        return np.asarray(sim_age_ns, dtype=float) * self.scale / NS_PER_S
+
+
+def line_scale(cfg) -> float:
+    """Device lines per modeled line (>= 1)."""
+    device_lines = cfg.array.capacity_gib * GIB / cfg.array.line_bytes
+    return max(1.0, device_lines / cfg.array.lines)
+
+
+def plan_refresh(cfg) -> RefreshPlan:
+    """Refresh age and the engine-side plan of a config's refresh policy."""
+    r = cfg.refresh
+    cell, drift = mlc_cell(cfg), drift_params(cfg)
+    n_cells = -(-cfg.array.line_bytes * 8 // cfg.cell.bits_per_cell)
+    ra = refresh_age(cell, drift, n_cells, r.correctable_bits, r.max_fail_prob, r.temperature_k,
+                     method=r.fail_model)
+    ages = np.logspace(-3, math.log10(drift.drift_t_max_s), 121)
+    tab = error_table(cell, drift, ages, n_cells, r.correctable_bits, r.temperature_k,
+                      method=r.fail_model)
+    scale = line_scale(cfg)
+    if r.policy == "drift":
+        interval = ra.age_s
+    elif r.policy == "periodic":
+        interval = r.interval_s
+    else:
+        interval = math.nan
+    threshold = interval * NS_PER_S / scale if math.isfinite(interval) else math.inf
+    scan = threshold * r.scan_fraction if math.isfinite(threshold) else math.inf
+    return RefreshPlan(r.policy, ra.age_s, ra.status, interval, scale, threshold, scan,
+                       n_cells * cfg.cell.bits_per_cell, r.scrub_errors, r.start, np.log10(ages),
+                       tab["rber_line"].to_numpy(), tab["p_uncorrectable"].to_numpy())

@@ -1,0 +1,80 @@
+"""Figure: how wear is spread over the lines of a lifetime run.
+
+Left, the histogram of per-line wear (line writes in the measuring window,
+leveler moves included); right, the share of lines at or below a wear
+level, against wear relative to the mean (1 = perfectly even).  Takes the
+``wear_histogram`` and ``wear_cdf`` tables of :func:`memsim.experiment.lifetime.lifetime`.
+"""
+from __future__ import annotations
+
+import io
+import os
+from collections.abc import Mapping
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
+
+from memsim.metrics.result import RunResult, atomic_write_bytes
+
+FIGURE_NAME = "wear.png"
+
+
+def wear_figure(hist: pd.DataFrame, cdf: pd.DataFrame, title: str = "") -> Figure:
+    """Build the two-panel wear figure (Agg canvas, no display needed)."""
+    for name, table, cols in (("wear_histogram", hist, ("lo_writes", "hi_writes", "count")),
+                              ("wear_cdf", cdf, ("share_of_lines", "wear_over_mean"))):
+        missing = set(cols) - set(table.columns)
+        if missing:
+            raise ValueError(f"{name} lacks columns {sorted(missing)}")
+    fig = Figure(figsize=(10.0, 4.0))
+    FigureCanvasAgg(fig)
+    ax, bx = fig.subplots(1, 2)
+    lo = hist["lo_writes"].to_numpy(float)
+    width = hist["hi_writes"].to_numpy(float) - lo
+    count = hist["count"].to_numpy(float)
+    ax.bar(lo, count, width=width, align="edge", color="tab:blue", edgecolor="none")
+    # A few worn-out lines beside thousands of even ones vanish on a linear axis.
+    if count.max(initial=0) > 0 and count[count > 0].min() * 100 < count.max():
+        ax.set_yscale("log")
+    ax.set_xlabel("line wear in window (line writes)")
+    ax.set_ylabel("lines (count)")
+    ax.set_title("per-line wear", fontsize="medium")
+    ax.grid(True, alpha=0.3)
+    share = cdf["share_of_lines"].to_numpy(float)
+    rel = cdf["wear_over_mean"].to_numpy(float)
+    bx.plot(rel, share, drawstyle="steps-post", color="tab:blue")
+    bx.axvline(1.0, color="grey", ls=":", lw=1.0)
+    if np.nanmax(rel, initial=0) > 20:
+        bx.set_xscale("symlog", linthresh=1.0)
+    bx.set_xlabel("line wear / mean line wear (ratio)")
+    bx.set_ylabel("share of lines at or below (fraction)")
+    bx.set_ylim(0, 1.02)
+    bx.set_title("wear CDF", fontsize="medium")
+    bx.grid(True, alpha=0.3)
+    if title:
+        fig.suptitle(title, fontsize="medium")
+    fig.tight_layout()
+    return fig
+
+
+def plot_wear(tables: Mapping[str, pd.DataFrame], path: str | os.PathLike[str], title: str = "") -> Path:
+    """Draw :func:`wear_figure` from ``tables`` and write it to ``path`` as PNG, atomically."""
+    out = Path(path)
+    fig = wear_figure(tables["wear_histogram"], tables["wear_cdf"], title)
+    buf = io.BytesIO()
+    fig.savefig(buf, format="png", dpi=120)
+    atomic_write_bytes(out, buf.getvalue())
+    return out
+
+
+def save_wear_figure(result: RunResult, folder: str | os.PathLike[str]) -> Path:
+    """Write ``wear.png`` of a lifetime result into its results folder."""
+    s = result.summary
+    name = result.config.get("run", {}).get("name", "")
+    title = f"{name}: leveling {result.config.get('leveling', {}).get('scheme', '?')}"
+    if "wear_max_over_mean" in s:
+        title += f", max/mean {s['wear_max_over_mean']:.3g}, CoV {s['wear_cov']:.3g}"
+    return plot_wear(result.tables, Path(folder) / FIGURE_NAME, title)
