@@ -12,6 +12,7 @@ not assert.
 from __future__ import annotations
 
 import argparse
+import gc
 import time
 
 import numpy as np
@@ -50,6 +51,7 @@ def naive(cfg, chunks) -> float:
         banks.append(amap.locate(c.line)[1])
         service.append(s)
     t, b, s = (np.concatenate(x).tolist() for x in (times, banks, service))
+    gc.collect()
     t0 = time.perf_counter()
     env = simpy.Environment()
     res = [simpy.Resource(env, capacity=1) for _ in range(amap.total_banks)]
@@ -80,10 +82,12 @@ def main() -> None:
     cfg = config(n)
     chunks = list(SyntheticSource(cfg.workload, cfg.footprint, np.random.default_rng(cfg.run.seed),
                                   cfg.run.chunk_requests))
+    gc.collect()           # both models start from a collected heap
     t0 = time.perf_counter()
     path = build_path(cfg, np.random.default_rng(cfg.run.seed))
     tot = TimingEngine(cfg, iter(chunks), path).run()
     ours = time.perf_counter() - t0
+    del path
     base = naive(cfg, chunks)
     print(f"requests                 {n}")
     print(f"bank utilization         {tot.bank_busy_ns.mean() / tot.simulated_ns:.2f}")

@@ -25,7 +25,12 @@ class UserError(Exception):
         self.where = where
         self.found = found
         self.allowed = allowed
-        super().__init__(f"{where}: found {found}; allowed: {allowed}")
+        super().__init__(where, found, allowed)
+
+    def __str__(self) -> str:
+        # args holds the three parts so the error survives pickling (process
+        # pools) and re-raising by simpy, which rebuild it from its args.
+        return f"{self.where}: found {self.found}; allowed: {self.allowed}"
 
     def one_line(self) -> str:
         """The message as one line (newlines folded)."""

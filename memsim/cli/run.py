@@ -26,12 +26,16 @@ def run(config: str, sets: tuple[str, ...], out: str | None) -> None:
 
 @click.command(name="list")
 def list_parts() -> None:
-    """List write schemes, wear levelers and technology presets."""
+    """List write schemes, wear levelers, refresh policies and technology presets."""
     from memsim.config import preset_names
+    from memsim.policy.leveling import leveler_names
+    from memsim.policy.refresh import POLICIES
     from memsim.policy.write import scheme_names
 
-    click.echo("write schemes: " + ", ".join(scheme_names()))
-    click.echo("presets:       " + ", ".join(preset_names()))
+    click.echo("write schemes:    " + ", ".join(scheme_names()))
+    click.echo("wear levelers:    " + ", ".join(leveler_names()))
+    click.echo("refresh policies: " + ", ".join(POLICIES))
+    click.echo("presets:          " + ", ".join(preset_names()))
 
 
 COMMANDS = [run, list_parts]

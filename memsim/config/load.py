@@ -180,7 +180,8 @@ def load_config(
         set_dotted(data, key, value)
     cfg = validate(data, name, {k for k, _ in items})
     trace = cfg.workload.trace
-    if trace and isinstance(source, (str, Path)) and not Path(trace).is_absolute():
+    from_file = not any(k == "workload.trace" for k, _ in items)
+    if trace and from_file and isinstance(source, (str, Path)) and not Path(trace).is_absolute():
         # A trace named in a config file is found next to that file.
         cfg.workload.trace = str(Path(source).parent / trace)
     return cfg

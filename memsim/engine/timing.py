@@ -17,7 +17,10 @@ the end of its bank access, so time spent back-pressured counts.
 """
 from __future__ import annotations
 
+import gc
 from collections import deque
+from itertools import repeat
+from operator import itemgetter
 from dataclasses import dataclass, field
 from typing import Iterable, Iterator
 
@@ -81,7 +84,7 @@ class _Wake(simpy.Event):
 class _Prepared:
     """One chunk, ready for simulated time: admission entries as tuples."""
 
-    __slots__ = ("entries", "lat", "op", "arrival", "finish")
+    __slots__ = ("entries", "lat", "op", "arrival", "finish", "users")
 
     def __init__(self, n: int) -> None:
         # Plain lists: the bank loop writes one element per request, and list
@@ -92,6 +95,7 @@ class _Prepared:
         self.arrival: list[float] = []
         self.op = np.zeros(n, np.int8)
         self.entries: list = []
+        self.users = 0
 
 
 class TimingEngine:
@@ -117,7 +121,8 @@ class TimingEngine:
         self.amap = AddressMap(a.channels, a.banks, a.row_lines, a.bank_hash)
         self.line_bits = a.line_bytes * 8
         self.closed = cfg.workload.arrival == "closed"
-        self.totals = TimingTotals(bank_busy_ns=np.zeros(self.amap.total_banks))
+        # A plain list while running (cheap item updates); numpy at the end.
+        self.totals = TimingTotals(bank_busy_ns=[0.0] * self.amap.total_banks)
         self.plan = refresh
         self.rng = rng if rng is not None else np.random.default_rng(cfg.run.seed + 1)
         self.agent: RefreshAgent | None = None
@@ -215,12 +220,17 @@ class TimingEngine:
             o_ns = cell.program_ns(o_set, o_reset, budget)
             w_cols.append(list(zip(o_ns.tolist(), o_set.tolist(), o_reset.tolist(),
                                    wb.n_set.tolist(), wb.n_reset.tolist())))
+        if not self.extended:
+            w_cols = w_cols[:4]        # the plain bank loop needs only these
         items = (list(zip(r_idx.tolist(), r_ch.tolist(), r_row.tolist(), r_phys.tolist()))
                  + list(zip(*w_cols)))
-        ol = order.tolist()
+        # Entries carry (prep, item) so the source hands them to a bank's
+        # inbox as they are (no tuple per request on the hot path).
+        paired = list(zip(repeat(prep), items))
+        ordered = itemgetter(*order.tolist())(paired) if len(paired) > 1 else tuple(paired)
         prep.entries = list(zip(t[pos[order]].tolist(), (order < nr).tolist(),
-                                np.concatenate([r_bank, w_bank])[order].tolist(),
-                                [items[k] for k in ol]))
+                                np.concatenate([r_bank, w_bank])[order].tolist(), ordered))
+        prep.users = nr + int((~moves).sum())
         return prep
 
     # ------------------------------------------------------------ simulation
@@ -256,7 +266,16 @@ class TimingEngine:
             self.refresh_running = nb
             for b in range(nb):
                 env.process(self.agent.scan(b))
-        env.run()
+        # The run allocates millions of short-lived tuples and events that
+        # reference counting frees; the cyclic collector would only rescan
+        # the long-lived prepared chunks over and over.  Pause it for the run.
+        was_enabled = gc.isenabled()
+        gc.disable()
+        try:
+            env.run()
+        finally:
+            if was_enabled:
+                gc.enable()
         return self._finish()
 
     def _wake(self, b: int, at: float) -> None:
@@ -277,12 +296,12 @@ class TimingEngine:
         ib, now = self.inbox[b], self.env.now
         rq, wq = self.rq[b], self.wq[b]
         while ib and ib[0][0] <= now:
-            _, is_read, prep, item = ib.popleft()
+            _, is_read, _, pi = ib.popleft()
             if is_read:
-                rq.append((prep, item))
+                rq.append(pi)
                 self.rpend[b] -= 1
             else:
-                wq.append((prep, item))
+                wq.append(pi)
                 self.wpend[b] -= 1
 
     def _source(self):
@@ -298,27 +317,35 @@ class TimingEngine:
         limit = self.cfg.workload.outstanding
         closed = self.closed
         rq, wq, inbox, rpend, wpend = self.rq, self.wq, self.inbox, self.rpend, self.wpend
+        idle = self.idle
         for prep in self._chunks():
             arrival = prep.arrival
-            for t, is_read, b, item in prep.entries:
-                user = is_read or item[0] >= 0
+            if not closed:
+                # Open loop: every request of the chunk is in flight from its
+                # arrival on; counting them at once is enough for the refresh
+                # scans, which only ask whether any is left.
+                self.in_flight += prep.users
+            for entry in prep.entries:
+                t, is_read, b, pi = entry
                 if closed:
-                    if user:
+                    item = pi[1]
+                    if is_read or item[0] >= 0:
                         while self.in_flight >= limit:
                             self.slot = env.event()
                             yield self.slot
                         arrival[item[0]] = env.now
+                        self.in_flight += 1
                     t = env.now
-                if user:
-                    self.in_flight += 1
+                    entry = (t, is_read, b, pi)
                 if is_read:
                     q, cap, pend = rq[b], rcap, rpend
                 else:
                     q, cap, pend = wq[b], wcap, wpend
                 if len(q) + pend[b] < cap:
-                    inbox[b].append((t, is_read, prep, item))
+                    inbox[b].append(entry)
                     pend[b] += 1
-                    self._wake(b, t)
+                    if idle[b] is not None:
+                        self._wake(b, t)
                     continue
                 # The queue may be full when this request arrives: go there.
                 if t > env.now:
@@ -328,7 +355,7 @@ class TimingEngine:
                     self.space[b] = env.event()
                     yield self.space[b]
                     self._admit(b)
-                q.append((prep, item))
+                q.append(pi)
                 self._wake(b, env.now)
         self.source_done = True
         for b in range(len(self.idle)):
@@ -356,12 +383,12 @@ class TimingEngine:
             now = env._now
             # Admit what has arrived (inlined: this loop is the hot path).
             while ib and ib[0][0] <= now:
-                _, is_read, prep, item = ib.popleft()
+                _, is_read, _, pi = ib.popleft()
                 if is_read:
-                    rq.append((prep, item))
+                    rq.append(pi)
                     rpend[b] -= 1
                 else:
-                    wq.append((prep, item))
+                    wq.append(pi)
                     wpend[b] -= 1
             if draining and len(wq) <= low:
                 draining = False
@@ -386,7 +413,7 @@ class TimingEngine:
                         sp.succeed()
                     yield from self._write(b, prep, item, draining, False)
                     continue
-                idx, ch, service, uses_bus = item[:4]
+                idx, ch, service, uses_bus = item
                 if uses_bus:
                     start = bus_free[ch] if bus_free[ch] > now else now
                     bus_free[ch] = start + burst
@@ -582,6 +609,7 @@ class TimingEngine:
             tot.finish_ns = np.concatenate([np.asarray(p.finish, float) for p in self.prepared])
             tot.arrival_ns = np.concatenate([np.asarray(p.arrival, float) for p in self.prepared])
         tot.simulated_ns = float(np.nanmax(tot.finish_ns)) if tot.finish_ns.size else 0.0
+        tot.bank_busy_ns = np.asarray(tot.bank_busy_ns, dtype=float)
         if self.agent is not None:
             self.agent.finish(tot.simulated_ns)
         return tot

@@ -88,23 +88,6 @@ def source_streams(seed: int) -> tuple[np.random.Generator, np.random.Generator]
     return req, content
 
 
-class _StreamTraceError(TraceError):
-    """A TraceError that survives simpy re-raising it.
-
-    simpy re-raises a process's exception as ``type(e)(*e.args)``; a plain
-    UserError passes one message to ``Exception`` but takes three arguments,
-    so that copy would fail with a TypeError and the one-line message would
-    be lost.
-    """
-
-    def __init__(self, where: str, found: str, allowed: str) -> None:
-        super().__init__(where, found, allowed)
-        self.args = (where, found, allowed)
-
-    def __str__(self) -> str:
-        return f"{self.where}: found {self.found}; allowed: {self.allowed}"
-
-
 class _Content:
     """Write content from the data model, drawn in fixed blocks of lines.
 
@@ -199,7 +182,8 @@ class RequestSource:
                     ch = Chunk(ch.time_ns, ch.op, ch.line, data)
                 yield ch
         except TraceError as exc:
-            raise _StreamTraceError(exc.where, exc.found, exc.allowed) from None
+            # Re-raised without the reader's frames: the user sees one line.
+            raise TraceError(exc.where, exc.found, exc.allowed) from None
 
 
 def build_source(cfg: RunConfig, rng: np.random.Generator | None = None, *,

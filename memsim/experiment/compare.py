@@ -444,8 +444,11 @@ class RunFailed(UserError):
     """A run stopped on a user mistake found only while running (a bad trace line, say)."""
 
     def __init__(self, where: str, message: str) -> None:
-        Exception.__init__(self, f"{where}: {message}")
+        Exception.__init__(self, where, message)
         self.where, self.found, self.allowed = where, message, ""
+
+    def __str__(self) -> str:
+        return f"{self.where}: {self.found}"
 
 
 @dataclass

@@ -590,6 +590,12 @@ def write_stream(cfg: RunConfig, seed: np.random.SeedSequence,
     The workload's source without arrival times (they do not change which
     lines are written); the same seed gives the same stream.
     """
+    if cfg.workload.pattern == "trace":
+        # A trace is finite: the replay (method b) calls this again to loop it.
+        from memsim.experiment.build import write_stream as trace_writes
+
+        yield from trace_writes(cfg, endless=True)
+        return
     wl = cfg.workload.model_copy(update={"arrival": "closed", "requests": 1 << 62})
     source = SyntheticSource(wl, cfg.footprint, np.random.default_rng(seed), chunk)
     for c in source:
@@ -672,6 +678,11 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
     seeds = _seeds(cfg.run.seed)
     rate, source = _write_rate(cfg, write_rate_gbps)
     window = cfg.lifetime.window_writes or cfg.workload.requests
+    if cfg.workload.pattern == "trace" and not cfg.lifetime.window_writes:
+        from memsim.experiment.build import write_stream as trace_writes
+
+        # One pass over the trace's writes.
+        window = sum(int(w.size) for w in trace_writes(cfg, endless=False))
     scale = DeviceScale.of(cfg)
     lt = cfg.lifetime
 

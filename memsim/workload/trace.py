@@ -84,12 +84,19 @@ Summary
 :func:`trace_info` gives counts, the read/write/hint mix, the footprint
 (distinct lines), time span, request rate and a histogram of reuse
 distances (see :func:`reuse_distances`).
+
+Modules
+-------
+This module holds the format's description and the public names; the code
+is in :mod:`~memsim.workload.trace_format` (grammar, lexing, checks,
+messages), :mod:`~memsim.workload.trace_shape` (rows to chunks, hint
+leads), :mod:`~memsim.workload.trace_reader`,
+:mod:`~memsim.workload.trace_writer` and :mod:`~memsim.workload.trace_info`.
 """
 from __future__ import annotations
 
-# The implementation lives in four modules; this one holds the format's
-# description and the public names.  The grammar's private pieces are
-# re-exported for the tests that check the two parse paths agree.
+# The grammar's private pieces are re-exported for the tests that check the
+# two parse paths agree.
 from memsim.workload.trace_format import (  # noqa: F401
     _ALLOWED,
     _FLOAT_RE,
