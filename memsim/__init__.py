@@ -18,7 +18,8 @@ _LAZY = {
     "point_stats": ("memsim.experiment.sweep", "point_stats"),
 }
 
-__all__ = ["__version__", *_LAZY]
+__all__ = ["RunConfig", "RunResult", "__version__", "compare", "drift_report", "lifetime",
+           "load_config", "point_stats", "simulate", "sweep"]
 
 
 def __getattr__(name: str):

@@ -43,3 +43,13 @@ class ConfigError(UserError):
 
 class TraceError(UserError):
     """A malformed trace file line or column."""
+
+
+def require_int(where: str, value: object, lo: int, hi: int | None = None) -> int:
+    """``value`` as an int if it is a whole number in ``[lo, hi]``; else a ConfigError at ``where``."""
+    ok = (isinstance(value, int) or type(value).__name__.startswith(("int", "uint"))) \
+        and not isinstance(value, bool)
+    if ok and value >= lo and (hi is None or value <= hi):
+        return int(value)
+    allowed = f"an integer >= {lo}" if hi is None else f"an integer in [{lo}, {hi}]"
+    raise ConfigError(where, repr(value), allowed)

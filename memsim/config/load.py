@@ -7,8 +7,9 @@ from __future__ import annotations
 
 import copy
 import tomllib
+from collections.abc import Mapping
 from pathlib import Path
-from typing import Any, Mapping
+from typing import Any
 
 from pydantic import BaseModel, ValidationError
 

@@ -185,4 +185,4 @@ class EraseAgent:
         }
 
 
-__all__ = ["EraseAgent", "IN_PLACE", "OUT_OF_PLACE", "WAIT"]
+__all__ = ["IN_PLACE", "OUT_OF_PLACE", "WAIT", "EraseAgent"]

@@ -19,10 +19,10 @@ from __future__ import annotations
 
 import gc
 from collections import deque
+from collections.abc import Iterable, Iterator
+from dataclasses import dataclass, field
 from itertools import repeat
 from operator import itemgetter
-from dataclasses import dataclass, field
-from typing import Iterable, Iterator
 
 import numpy as np
 import simpy
@@ -34,7 +34,7 @@ from memsim.policy.write.bits import popcount_rows
 from memsim.policy.writepath import WritePath
 from memsim.tech.array import AddressMap
 from memsim.tech.cell import CellTech
-from memsim.workload.chunk import READ, WRITE, Chunk
+from memsim.workload.chunk import READ, Chunk
 
 
 @dataclass
@@ -84,7 +84,7 @@ class _Wake(simpy.Event):
 class _Prepared:
     """One chunk, ready for simulated time: admission entries as tuples."""
 
-    __slots__ = ("entries", "lat", "op", "arrival", "finish", "users")
+    __slots__ = ("arrival", "entries", "finish", "lat", "op", "users")
 
     def __init__(self, n: int) -> None:
         # Plain lists: the bank loop writes one element per request, and list
@@ -137,7 +137,7 @@ class TimingEngine:
     # ------------------------------------------------------------ preparation
     def _prepare(self, chunk: Chunk) -> _Prepared:
         """Vectorized work for a chunk: remap, bit counts, service times, energy."""
-        tot, cell, a = self.totals, self.cell, self.cfg.array
+        tot, cell = self.totals, self.cell
         keep = chunk.op != 2
         tot.hints += int((~keep).sum())
         if not keep.all():

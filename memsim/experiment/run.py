@@ -2,18 +2,19 @@
 from __future__ import annotations
 
 import time
+from collections.abc import Mapping
 from pathlib import Path
-from typing import Any, Mapping
+from typing import Any
 
 import numpy as np
 
 from memsim import __version__
 from memsim.config import RunConfig, load_config
-from memsim.engine.timing import TimingEngine, TimingTotals
-from memsim.metrics.result import RunResult, latency_histogram, latency_stats
-from memsim.experiment.build import build_path, build_source, check_names, source_fields
 from memsim.engine.refresh_agent import RefreshAgent
+from memsim.engine.timing import TimingEngine, TimingTotals
+from memsim.experiment.build import build_path, build_source, check_names, source_fields
 from memsim.experiment.lifetime import lifetime_fields
+from memsim.metrics.result import RunResult, latency_histogram, latency_stats
 from memsim.policy.refresh import plan_refresh
 from memsim.policy.writepath import WritePath
 

@@ -41,7 +41,7 @@ import numpy as np
 from scipy.optimize import brentq
 from scipy.special import digamma, lambertw
 
-from memsim.errors import ConfigError
+from memsim.errors import ConfigError, require_int
 from memsim.policy.leveling.base import Moves
 
 # Placement modes returned by BlockPool.place.
@@ -537,8 +537,7 @@ def _i64(values: list[int]) -> np.ndarray:
 
 
 def _check_int(where: str, value: object, lo: int) -> None:
-    if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or value < lo:
-        raise ConfigError(where, repr(value), f"an integer >= {lo}")
+    require_int(where, value, lo)
 
 
 def analytic_write_amplification(

@@ -28,7 +28,7 @@ class CellTech:
     reset_pj: float
 
     @classmethod
-    def from_config(cls, cell) -> "CellTech":
+    def from_config(cls, cell) -> CellTech:
         return cls(**{k: getattr(cell, k) for k in cls.__dataclass_fields__})
 
     def cells_per_round(self, budget_ua: float) -> tuple[int, int]:

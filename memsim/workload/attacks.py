@@ -17,15 +17,11 @@ from collections.abc import Callable, Iterator
 
 import numpy as np
 
-from memsim.errors import ConfigError
+from memsim.errors import ConfigError, require_int
 
 
 def _check(key: str, value: object, lo: int, hi: int | None = None) -> int:
-    ok = isinstance(value, (int, np.integer)) and not isinstance(value, bool)
-    if ok and value >= lo and (hi is None or value <= hi):
-        return int(value)
-    allowed = f"an integer >= {lo}" if hi is None else f"an integer in [{lo}, {hi}]"
-    raise ConfigError(f"workload.{key}", repr(value), allowed)
+    return require_int(f"workload.{key}", value, lo, hi)
 
 
 def repeated_address(rng: np.random.Generator, n: int, footprint: int, *,

@@ -44,12 +44,12 @@ class Chunk:
     def __len__(self) -> int:
         return int(self.time_ns.size)
 
-    def take(self, idx: np.ndarray | slice) -> "Chunk":
+    def take(self, idx: np.ndarray | slice) -> Chunk:
         data = None if self.data is None else self.data[idx]
         return Chunk(self.time_ns[idx], self.op[idx], self.line[idx], data)
 
     @staticmethod
-    def concat(chunks: list["Chunk"]) -> "Chunk":
+    def concat(chunks: list[Chunk]) -> Chunk:
         if not chunks:
             return Chunk(np.empty(0), np.empty(0, np.int8), np.empty(0, np.int64))
         data = None

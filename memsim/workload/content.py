@@ -9,7 +9,6 @@ from __future__ import annotations
 import numpy as np
 
 
-
 class DataModel:
     """New content for writes.
 

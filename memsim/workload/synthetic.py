@@ -7,7 +7,7 @@ read share) so tests can compare sampled moments with them.
 """
 from __future__ import annotations
 
-from typing import Callable, Iterator
+from collections.abc import Callable, Iterator
 
 import numpy as np
 

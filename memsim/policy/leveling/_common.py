@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from memsim.errors import ConfigError
+from memsim.errors import require_int
 
 _GOLDEN = np.uint64(0x9E3779B97F4A7C15)
 _M1 = np.uint64(0xBF58476D1CE4E5B9)
@@ -17,11 +17,7 @@ _M2 = np.uint64(0x94D049BB133111EB)
 
 def check_int(key: str, value: object, lo: int, hi: int | None = None) -> int:
     """Validate an integer leveler parameter; raise :class:`ConfigError`."""
-    ok = isinstance(value, (int, np.integer)) and not isinstance(value, bool)
-    if ok and value >= lo and (hi is None or value <= hi):
-        return int(value)
-    allowed = f"an integer >= {lo}" if hi is None else f"an integer in [{lo}, {hi}]"
-    raise ConfigError(f"leveling.{key}", repr(value), allowed)
+    return require_int(f"leveling.{key}", value, lo, hi)
 
 
 def mix64(x: np.ndarray) -> np.ndarray:

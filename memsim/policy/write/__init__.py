@@ -21,4 +21,4 @@ def make_scheme(name: str, line_bytes: int, word_bits: int = 32) -> WriteScheme:
     return SCHEMES[name](line_bytes, word_bits)
 
 
-__all__ = ["Encoded", "SCHEMES", "WriteScheme", "make_scheme", "scheme_names"]
+__all__ = ["SCHEMES", "Encoded", "WriteScheme", "make_scheme", "scheme_names"]
