@@ -120,6 +120,9 @@ class ControllerSection(Section):
                                                                "than this share of their programming.")
     write_pause: bool = Field(False, description="Pause a write between programming rounds to serve "
                                                  "reads that arrived (outside drains).")
+    hint_preset: bool = Field(False, description="Act on write hints: pre-program the hinted line to "
+                                                 "all-SET in idle time, so the write needs only RESET "
+                                                 "pulses.")
 
 
 class WriteSection(Section):
@@ -155,6 +158,8 @@ class WorkloadSection(Section):
     on_ns: float = Field(20_000.0, gt=0, description="Mean burst length (arrival onoff), ns.")
     off_ns: float = Field(20_000.0, gt=0, description="Mean idle gap (arrival onoff), ns.")
     outstanding: int = Field(16, ge=1, description="Requests in flight (arrival closed).")
+    hint_lead_ns: float = Field(0.0, ge=0, description="Announce every write by a hint this long "
+                                                       "before it, ns; 0 = no hints.")
     data: Literal["random", "flip", "zeros", "ones"] = Field(
         "random", description="Data model of written content.")
     flip_fraction: float = Field(0.1, ge=0, le=1, description="Share of bits a write changes (data flip).")

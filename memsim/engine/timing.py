@@ -34,7 +34,10 @@ from memsim.policy.write.bits import popcount_rows
 from memsim.policy.writepath import WritePath
 from memsim.tech.array import AddressMap
 from memsim.tech.cell import CellTech
-from memsim.workload.chunk import READ, Chunk
+from memsim.workload.chunk import HINT, READ, Chunk
+
+
+PRESET = -3        # queue-item index marking a hint's pre-programming
 
 
 @dataclass
@@ -66,6 +69,11 @@ class TimingTotals:
     cancelled_pj: float = 0.0        # programming energy of aborted writes, pJ
     cancelled_cells: int = 0         # cells programmed by aborted writes
     pauses: int = 0
+    presets: int = 0                 # lines pre-programmed from hints
+    presets_repeated: int = 0        # of them, lines already pre-programmed
+    preset_pj: float = 0.0
+    preset_cells: int = 0
+    hint_hits: int = 0               # user writes that found their line pre-programmed
 
     @property
     def requests(self) -> int:
@@ -131,16 +139,22 @@ class TimingEngine:
         # budget is smaller.
         self.round_budget_ua = min(a.bank_budget_ua, p.budget_ua) if p.budget_ua > 0 else a.bank_budget_ua
         self.out_of_place = path.scheme.out_of_place
-        self.extended = c.write_cancel or c.write_pause or p.budget_ua > 0 or self.out_of_place
+        self.hint_mode = c.hint_preset
+        self.cost_at_service = self.out_of_place or self.hint_mode
+        self.preset: dict[int, bool] = {}          # lines pre-programmed from a hint, not yet written
+        self.extended = (c.write_cancel or c.write_pause or p.budget_ua > 0 or self.out_of_place
+                         or self.hint_mode)
         self.erase = EraseAgent(self) if self.out_of_place else None
 
     # ------------------------------------------------------------ preparation
     def _prepare(self, chunk: Chunk) -> _Prepared:
         """Vectorized work for a chunk: remap, bit counts, service times, energy."""
         tot, cell = self.totals, self.cell
-        keep = chunk.op != 2
+        keep = chunk.op != HINT
         tot.hints += int((~keep).sum())
         if not keep.all():
+            if self.hint_mode:
+                self._queue_hints(chunk.take(~keep))
             chunk = chunk.take(keep)
         n = len(chunk)
         prep = _Prepared(n)
@@ -172,7 +186,7 @@ class TimingEngine:
         else:
             program = self.cell.program_ns(wb.n_set, wb.n_reset, budget)
             pj = cell.program_pj(wb.n_set, wb.n_reset)
-            if not self.out_of_place:     # block erase: counted when the placement is known
+            if not self.cost_at_service:  # block erase, hints: counted when the bank decides
                 tot.set_pj += float(wb.n_set.sum()) * cell.set_pj
                 tot.reset_pj += float(wb.n_reset.sum()) * cell.reset_pj
             cells = wb.n_set + wb.n_reset
@@ -187,7 +201,7 @@ class TimingEngine:
         service = program + pre
         extra_bits = self.line_bits + self.path.scheme.flag_cells
         tot.read_pj += (int(moves.sum()) + (int((~moves).sum()) if pre_read else 0)) * extra_bits * cell.read_pj
-        if not self.out_of_place:
+        if not self.cost_at_service:
             tot.user_set_cells += int(wb.n_set[~moves].sum())
             tot.user_reset_cells += int(wb.n_reset[~moves].sum())
         tot.move_cells += int(wb.n_set[moves].sum() + wb.n_reset[moves].sum())
@@ -220,6 +234,13 @@ class TimingEngine:
             o_ns = cell.program_ns(o_set, o_reset, budget)
             w_cols.append(list(zip(o_ns.tolist(), o_set.tolist(), o_reset.tolist(),
                                    wb.n_set.tolist(), wb.n_reset.tolist())))
+        elif self.hint_mode:
+            # A write to a line pre-programmed to all-SET from a hint needs
+            # only RESET pulses for its 0 bits and no pre-read.
+            o_reset = self.line_bits - wb.ones
+            o_ns = cell.program_ns(np.zeros_like(o_reset), o_reset, budget)
+            w_cols.append(list(zip(o_ns.tolist(), [0] * o_ns.size, o_reset.tolist(),
+                                   wb.n_set.tolist(), wb.n_reset.tolist())))
         if not self.extended:
             w_cols = w_cols[:4]        # the plain bank loop needs only these
         items = (list(zip(r_idx.tolist(), r_ch.tolist(), r_row.tolist(), r_phys.tolist()))
@@ -243,6 +264,7 @@ class TimingEngine:
         self.rq = [deque() for _ in range(nb)]
         self.wq = [deque() for _ in range(nb)]
         self.fq = [deque() for _ in range(nb)]      # refresh operations
+        self.hq = [deque() for _ in range(nb)]      # write hints: (time, preset item)
         self.idle: list = [None] * nb
         self.space: list = [None] * nb
         self.slot = None
@@ -363,7 +385,7 @@ class TimingEngine:
 
     def _bank(self, b: int):
         env = self.env
-        rq, wq, ib, fq = self.rq[b], self.wq[b], self.inbox[b], self.fq[b]
+        rq, wq, ib, fq, hq = self.rq[b], self.wq[b], self.inbox[b], self.fq[b], self.hq[b]
         rpend, wpend, space = self.rpend, self.wpend, self.space
         scrub = self.agent.on_read if (self.agent is not None and self.plan.policy == "scrub") else None
         tot = self.totals
@@ -431,12 +453,25 @@ class TimingEngine:
                     start = bus_free[ch]
                 bus_free[ch] = start + burst
                 dur = start + burst - now
-            elif ib:
+            elif hq and hq[0][0] <= now:
+                # Idle with a hint in hand: pre-program its line.
+                yield from self._write(b, None, hq.popleft()[1], False, False)
+                continue
+            elif ib or hq:
                 # Idle until the next arrival: clean erase blocks meanwhile.
                 if erase is not None and erase.wants_idle_clean(b):
                     yield from erase.clean(b, yield_to_reads=True)
                     continue
-                yield timeout(ib[0][0] - now)
+                if ib and (not hq or ib[0][0] <= hq[0][0]):
+                    # The source hands requests over in time order: nothing
+                    # can arrive before the inbox head.
+                    yield timeout(ib[0][0] - now)
+                else:
+                    # Next is a hint, but a request may still be handed over
+                    # for an earlier time: sleep until either.
+                    ev = self.idle[b] = _Wake(env)
+                    yield env.any_of([ev, timeout(hq[0][0] - now)])
+                    self.idle[b] = None
                 continue
             else:
                 if erase is not None and erase.wants_idle_clean(b):
@@ -460,6 +495,30 @@ class TimingEngine:
                 if self.slot is not None:
                     ev, self.slot = self.slot, None
                     ev.succeed()
+
+    def _queue_hints(self, hints: Chunk) -> None:
+        """Hand write hints to their banks: each becomes a pre-programming
+        item (read the line, SET its 0 cells) served when the bank is idle.
+
+        References: Qureshi, Franceschini, Jagmohan and Lastras, "PreSET",
+        ISCA 2012 (bringing a line to the slow state before its write).
+        """
+        cell = self.cell
+        phys = self.path.leveler.lookup(hints.line)
+        ch, bank, _ = self.amap.locate(phys)
+        n_set = self.line_bits - popcount_rows(self.path.stored[phys])
+        per_set = cell.cells_per_round(self.round_budget_ua)[1]
+        service = cell.program_ns(n_set, np.zeros_like(n_set), self.round_budget_ua) + cell.read_ns
+        pj = n_set * cell.set_pj + self.line_bits * cell.read_pj
+        cur = np.minimum(n_set, per_set) * cell.set_ua
+        hq = self.hq
+        for t, b, c_, s_, cu, e, n, p_ in zip(hints.time_ns.tolist(), bank.tolist(), ch.tolist(),
+                                              service.tolist(), cur.tolist(), pj.tolist(),
+                                              n_set.tolist(), phys.tolist()):
+            hq[b].append((t, (PRESET, c_, s_, False, cu, 0.0, 0, 0, e, n, p_)))
+            # Wake an idle bank now (not at the hint's time: a request for an
+            # earlier time may still come) so it plans its sleep again.
+            self._wake(b, self.env.now)
 
     def _next_read(self, b: int, now: float, end: float) -> float | None:
         """Arrival time of the first read that reaches bank ``b`` before ``end``."""
@@ -487,7 +546,19 @@ class TimingEngine:
         """
         env, tot, c, cell = self.env, self.totals, self.cfg.controller, self.cell
         idx, ch, service, uses_bus, cur, pre, rr, sr, pj, cells, phys = item[:11]
-        if len(item) > 11:
+        if len(item) > 11 and self.erase is None:
+            # Hints: a write whose line was pre-programmed uses that.
+            o_ns, o_set, o_reset, i_set, i_reset = item[11]
+            if self.preset.pop(phys, False):
+                service, pre, n_set, n_reset = o_ns, 0.0, o_set, o_reset
+                tot.hint_hits += 1
+            else:
+                n_set, n_reset = i_set, i_reset
+            tot.set_pj += n_set * cell.set_pj
+            tot.reset_pj += n_reset * cell.reset_pj
+            tot.user_set_cells += n_set
+            tot.user_reset_cells += n_reset
+        elif len(item) > 11:
             # Block erase: clean first if the pool is low, then place.
             er = self.erase
             while er.pools[b].need_erase():
@@ -565,6 +636,15 @@ class TimingEngine:
             yield pool.put(need)
         if again is not None:
             self.wq[b].appendleft((prep, again))
+        elif idx == PRESET:
+            if phys in self.preset:
+                tot.presets_repeated += 1
+            self.preset[phys] = True
+            tot.presets += 1
+            tot.preset_pj += pj
+            tot.preset_cells += cells
+            self.path.line_writes[phys] += 1
+            self.path.line_cells[phys] += cells
         elif idx >= 0:
             done_t = env.now
             prep.finish[idx] = done_t

@@ -51,6 +51,16 @@ def check_names(cfg: RunConfig, where_prefix: str = "") -> None:
     if SCHEMES[cfg.write.scheme].out_of_place and cfg.leveling.scheme != "none":
         raise ConfigError("leveling.scheme", repr(cfg.leveling.scheme),
                           "none with write.scheme block_erase (its block pool remaps lines itself)")
+    if cfg.controller.hint_preset:
+        for key, bad, allowed in (
+                ("write.scheme", SCHEMES[cfg.write.scheme].out_of_place, "an in-place scheme"),
+                ("cell.bits_per_cell", cfg.cell.bits_per_cell > 1, "1 (pre-programming models SLC)"),
+                ("leveling.scheme", cfg.leveling.scheme != "none",
+                 "none (leveler moves would undo a pre-programmed line)")):
+            if bad:
+                value = {"write.scheme": cfg.write.scheme, "cell.bits_per_cell": cfg.cell.bits_per_cell,
+                         "leveling.scheme": cfg.leveling.scheme}[key]
+                raise ConfigError(key, repr(value), f"{allowed} with controller.hint_preset")
     if SCHEMES[cfg.write.scheme].out_of_place and cfg.cell.bits_per_cell > 1:
         raise ConfigError("write.scheme", repr(cfg.write.scheme),
                           "a per-cell scheme with multi-level cells (block_erase models SLC)")

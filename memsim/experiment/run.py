@@ -62,7 +62,7 @@ def summarize(cfg: RunConfig, tot: TimingTotals, path: WritePath) -> dict[str, A
     }
     s.update(latency_stats(lat[op == 0], "read_latency"))
     s.update(latency_stats(lat[op == 1], "write_latency"))
-    energy = tot.read_pj + tot.set_pj + tot.reset_pj + tot.mlc_pj + tot.cancelled_pj
+    energy = tot.read_pj + tot.set_pj + tot.reset_pj + tot.mlc_pj + tot.cancelled_pj + tot.preset_pj
     bits = n * line_bytes * 8
     s.update({
         "energy_pj": energy,
@@ -71,6 +71,7 @@ def summarize(cfg: RunConfig, tot: TimingTotals, path: WritePath) -> dict[str, A
         "energy_reset_pj": tot.reset_pj,
         "energy_mlc_program_pj": tot.mlc_pj,
         "energy_cancelled_pj": tot.cancelled_pj,
+        "energy_preset_pj": tot.preset_pj,
         "energy_per_bit_pj": energy / bits if bits else 0.0,
         "cells_programmed_per_write": (tot.user_set_cells + tot.user_reset_cells) / tot.writes
         if tot.writes else 0.0,
@@ -82,6 +83,12 @@ def summarize(cfg: RunConfig, tot: TimingTotals, path: WritePath) -> dict[str, A
         "write_cancellations": tot.cancellations,
         "cancelled_cells": tot.cancelled_cells,
         "write_pauses": tot.pauses,
+        "hints": tot.hints,
+        "presets": tot.presets,
+        "hint_hits": tot.hint_hits,
+        "hint_coverage": tot.hint_hits / tot.hints if tot.hints else 0.0,
+        "wasted_presets": tot.presets - tot.hint_hits,
+        "wasted_preset_cells": round(tot.preset_cells * (1 - tot.hint_hits / tot.presets)) if tot.presets else 0,
         "power_wait_ns": tot.power_wait_ns,
         "power_wait_per_write_ns": tot.power_wait_ns / tot.writes if tot.writes else 0.0,
         "cells_per_ns": (tot.user_set_cells + tot.user_reset_cells + tot.move_cells) / sim

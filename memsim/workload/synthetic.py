@@ -13,7 +13,7 @@ import numpy as np
 
 from memsim.errors import ConfigError
 from memsim.workload import attacks
-from memsim.workload.chunk import READ, WRITE, Chunk
+from memsim.workload.chunk import HINT, READ, WRITE, Chunk
 
 AddressFn = Callable[[np.random.Generator, int, int], np.ndarray]
 
@@ -164,6 +164,13 @@ class SyntheticSource:
         return self.wl.read_fraction
 
     def __iter__(self) -> Iterator[Chunk]:
+        lead = getattr(self.wl, "hint_lead_ns", 0.0)
+        if lead > 0:
+            yield from _with_hints(self._requests(), lead)
+        else:
+            yield from self._requests()
+
+    def _requests(self) -> Iterator[Chunk]:
         k = self.wl.size_lines
         left = self.wl.requests
         while left > 0:
@@ -178,3 +185,26 @@ class SyntheticSource:
             m = min(left, t.size)
             left -= m
             yield Chunk(t[:m], ops[:m], base[:m])
+
+
+def _with_hints(chunks: Iterator[Chunk], lead: float) -> Iterator[Chunk]:
+    """Precede every write by a hint for its line ``lead`` ns earlier.
+
+    Requests are held back until no later write's hint can still precede
+    them, so the stream stays in time order across chunks.
+    """
+    held = Chunk(np.empty(0), np.empty(0, np.int8), np.empty(0, np.int64))
+    for c in chunks:
+        w = c.op == WRITE
+        t_h = c.time_ns[w] - lead
+        ok = t_h >= 0                     # writes too early to be announced get no hint
+        hints = Chunk(t_h[ok], np.full(int(ok.sum()), HINT, np.int8), c.line[w][ok])
+        merged = Chunk.concat([held, hints, c])
+        order = np.argsort(merged.time_ns, kind="stable")
+        merged = merged.take(order)
+        cut = int(np.searchsorted(merged.time_ns, c.time_ns[-1] - lead, side="right"))
+        if cut:
+            yield merged.take(slice(0, cut))
+        held = merged.take(slice(cut, None))
+    if len(held):
+        yield held
