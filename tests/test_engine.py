@@ -72,3 +72,11 @@ def test_write_queue_backpressure_bounds_queue():
     assert np.all(np.isfinite(tot.latency_ns))
     busy = tot.bank_busy_ns / tot.simulated_ns
     assert busy.mean() > 0.9
+
+
+def test_closed_loop_with_writes_held_back_still_completes():
+    # idle_writes off and every outstanding request a write below the drain
+    # mark: the banks must still serve them, or the source waits forever.
+    cfg, tot = _engine(**{"workload.arrival": "closed", "workload.outstanding": 4,
+                          "controller.idle_writes": False})
+    assert np.all(np.isfinite(tot.latency_ns)) and tot.requests == cfg.workload.requests

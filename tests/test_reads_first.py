@@ -63,3 +63,11 @@ def test_channel_scope_budget_is_per_channel():
     dev = simulate(None, overrides={**ov, "power.scope": "device"}).summary
     chan = simulate(None, overrides={**ov, "power.scope": "channel"}).summary
     assert chan["throughput_gbps"] > dev["throughput_gbps"]
+
+
+def test_cancellation_with_a_power_budget_runs():
+    # A read that arrived while the write waited for current cancels it at
+    # once (no negative delay).
+    s = simulate(None, overrides={"workload.requests": 8000, "workload.interval_ns": 30.0,
+                                   "controller.write_cancel": True, "power.budget_ua": 400.0}).summary
+    assert s["requests"] == 8000 and s["power_wait_ns"] > 0

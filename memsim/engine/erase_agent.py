@@ -87,8 +87,13 @@ class EraseAgent:
     # ------------------------------------------------------------ cleaning
     def wants_idle_clean(self, b: int) -> bool:
         pool = self.pools[b]
-        return self.jobs[b] is not None or (
-            pool.free_blocks < self.idle_blocks and pool.pick_victim() is not None)
+        if self.jobs[b] is not None:
+            return True
+        if pool.free_blocks >= self.idle_blocks:
+            return False
+        # Only if the victim's live lines fit now; otherwise clean() would
+        # refuse and the bank would spin without time passing.
+        return pool.can_clean()
 
     def clean(self, b: int, yield_to_reads: bool = False):
         """Simpy sub-process: clean bank ``b`` (moves, then bulk init).
@@ -108,7 +113,9 @@ class EraseAgent:
                 return False
         steps = job["steps"]
         t0 = env.now
-        pool_ua = eng.pools[0] if eng.pools else None
+        # The bank's channel pool (global bank index = channel * banks + bank).
+        pool_ua = (eng.pools[b // eng.cfg.array.banks if len(eng.pools) > 1 else 0]
+                   if eng.pools else None)
         need = min(self.erase_ua, pool_ua.capacity) if pool_ua is not None else 0.0
         if need > 0:
             yield pool_ua.get(need)

@@ -39,7 +39,7 @@ class RefreshAgent:
             # interval; a fresh device starts with every line just written.
             start = (rng.uniform(0.0, plan.threshold_ns, n) if plan.start == "spread"
                      else np.zeros(n))
-            self.last = -start if plan.policy == "drift" else np.zeros(n)
+            self.last = -start
             if plan.policy == "periodic":
                 self.next_due = plan.threshold_ns - start
         ch, bank, _ = engine.amap.locate(np.arange(n))

@@ -200,7 +200,10 @@ class TimingEngine:
         pre = np.where(moves | pre_read, cell.read_ns, 0.0)
         service = program + pre
         extra_bits = self.line_bits + self.path.scheme.flag_cells
-        tot.read_pj += (int(moves.sum()) + (int((~moves).sum()) if pre_read else 0)) * extra_bits * cell.read_pj
+        # Pre-reads of user writes: known now, unless the bank decides at
+        # service time (block erase, hints), where a write may skip it.
+        user_pre = int((~moves).sum()) if pre_read and not self.cost_at_service else 0
+        tot.read_pj += (int(moves.sum()) + user_pre) * extra_bits * cell.read_pj
         if not self.cost_at_service:
             tot.user_set_cells += int(wb.n_set[~moves].sum())
             tot.user_reset_cells += int(wb.n_reset[~moves].sum())
@@ -354,6 +357,10 @@ class TimingEngine:
                     if is_read or item[0] >= 0:
                         while self.in_flight >= limit:
                             self.slot = env.event()
+                            # Banks holding writes back (idle_writes off)
+                            # must serve them now, or nothing completes.
+                            for bank in range(len(idle)):
+                                self._wake(bank, env.now)
                             yield self.slot
                         arrival[item[0]] = env.now
                         self.in_flight += 1
@@ -427,7 +434,8 @@ class TimingEngine:
                 dur = item[2]
                 idx = item[0]
                 tot.refresh_busy_ns += dur
-            elif draining or (wq and not rq and (idle_writes or (self.source_done and not ib))):
+            elif draining or (wq and not rq and (idle_writes or self.slot is not None
+                                                 or (self.source_done and not ib))):
                 prep, item = wq.popleft()
                 if extended:
                     if space[b] is not None:
@@ -552,6 +560,7 @@ class TimingEngine:
             if self.preset.pop(phys, False):
                 service, pre, n_set, n_reset = o_ns, 0.0, o_set, o_reset
                 tot.hint_hits += 1
+                cur = min(n_reset, cell.cells_per_round(self.round_budget_ua)[0]) * cell.reset_ua
             else:
                 n_set, n_reset = i_set, i_reset
             tot.set_pj += n_set * cell.set_pj
@@ -584,6 +593,8 @@ class TimingEngine:
             per_reset, per_set = cell.cells_per_round(self.round_budget_ua)
             cur = max(min(n_reset, per_reset) * cell.reset_ua, min(n_set, per_set) * cell.set_ua)
             rr = sr = 0            # no cancellation or pausing of placed writes
+        if pre > 0 and idx >= 0 and self.cost_at_service:
+            tot.read_pj += (self.line_bits + self.path.scheme.flag_cells) * cell.read_pj
         t0 = env.now
         pool = self.pools[ch if len(self.pools) > 1 else 0] if self.pools else None
         need = min(cur, pool.capacity) if pool is not None else 0.0
@@ -605,7 +616,7 @@ class TimingEngine:
             if t_r is not None:
                 span = end - prog_start
                 if c.write_cancel and t_r < prog_start + c.cancel_before * span:
-                    stop = t_r
+                    stop = max(t_r, now)      # a read that came while we waited for current
                     done = max(0.0, stop - prog_start) / span if span > 0 else 0.0
                     tot.cancellations += 1
                     tot.cancelled_pj += done * pj

@@ -128,7 +128,7 @@ def refresh_fields(cfg: RunConfig, tot: TimingTotals, agent: RefreshAgent | None
 
 
 def erase_fields(cfg: RunConfig, engine: TimingEngine, summary: dict[str, Any]) -> dict[str, Any]:
-    """Block erase-ahead keys (write amplification 1 for in-place schemes)."""
+    """Block erase-ahead keys; for in-place schemes write amplification counts leveler moves."""
     if engine.erase is None:
         return {"write_amplification": 1.0 + summary["leveling_move_writes"] / max(1, summary["writes"])}
     e = engine.erase.summary()

@@ -359,6 +359,11 @@ class BlockPool:
         and possible now (room for any victim's live lines)."""
         if len(self._free) + self._n_erasing >= self.low_watermark:
             return False
+        return self.can_clean()
+
+    def can_clean(self) -> bool:
+        """Whether :meth:`clean` would clean a block now (a victim whose live
+        lines fit)."""
         v = self.pick_victim()
         return v is not None and self._live[v] <= self._room()
 
