@@ -142,8 +142,11 @@ class TimingEngine:
         self.hint_mode = c.hint_preset
         self.cost_at_service = self.out_of_place or self.hint_mode
         self.preset: dict[int, bool] = {}          # lines pre-programmed from a hint, not yet written
+        # Closed loop with refresh: write times are known only at hand-over,
+        # so write items must carry their physical line (full layout).
+        self.closed_refresh = self.closed and refresh is not None and refresh.policy != "none"
         self.extended = (c.write_cancel or c.write_pause or p.budget_ua > 0 or self.out_of_place
-                         or self.hint_mode)
+                         or self.hint_mode or self.closed_refresh)
         self.erase = EraseAgent(self) if self.out_of_place else None
 
     # ------------------------------------------------------------ preparation
@@ -211,7 +214,7 @@ class TimingEngine:
         tot.move_writes += int(moves.sum())
         tot.meta_writes += wb.meta_writes
         tot.user_write_ns += float(service[~moves].sum())
-        if self.agent is not None:
+        if self.agent is not None and not self.closed:
             self.agent.note_writes(chunk.time_ns[w_idx[wb.after]] if w_idx.size else np.empty(0), wb.phys)
 
         # Admission entries in arrival order: (time, is_read, bank, item).
@@ -366,6 +369,8 @@ class TimingEngine:
                         self.in_flight += 1
                     t = env.now
                     entry = (t, is_read, b, pi)
+                    if not is_read and self.closed_refresh:
+                        self.agent.note_writes(np.array([t]), np.array([item[10]]))
                 if is_read:
                     q, cap, pend = rq[b], rcap, rpend
                 else:
