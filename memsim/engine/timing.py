@@ -58,6 +58,8 @@ class TimingTotals:
     set_pj: float = 0.0
     reset_pj: float = 0.0
     mlc_pj: float = 0.0              # program-and-verify energy of multi-level cells
+    refresh_pj: float = 0.0          # refresh reads and reprogramming
+    erase_pj: float = 0.0            # block erase-ahead: cleaner moves and bulk initialization
     user_set_cells: int = 0
     user_reset_cells: int = 0
     move_cells: int = 0
@@ -559,35 +561,29 @@ class TimingEngine:
         """
         env, tot, c, cell = self.env, self.totals, self.cfg.controller, self.cell
         idx, ch, service, uses_bus, cur, pre, rr, sr, pj, cells, phys = item[:11]
-        if len(item) > 11 and self.erase is None:
-            # Hints: a write whose line was pre-programmed uses that.
-            o_ns, o_set, o_reset, i_set, i_reset = item[11]
-            if self.preset.pop(phys, False):
-                service, pre, n_set, n_reset = o_ns, 0.0, o_set, o_reset
-                tot.hint_hits += 1
-                cur = min(n_reset, cell.cells_per_round(self.round_budget_ua)[0]) * cell.reset_ua
+        if len(item) > 11:
+            # The bank decides the write's cost now: out of place into an
+            # initialized line (block erase) or into a line pre-programmed
+            # from a hint is the fast form, anything else the in-place one.
+            if self.erase is not None:
+                er = self.erase
+                while er.pools[b].need_erase():       # clean first if the pool is low
+                    if not (yield from er.clean(b)):
+                        break
+                while True:
+                    # With block erase the leveler is "none": the write
+                    # path's line is the logical line; the pool places it.
+                    phys, mode = er.place(b, item[10])
+                    if mode != WAIT:
+                        break
+                    if not (yield from er.clean(b)):
+                        raise RuntimeError("block erase: no initialized line and nothing to clean")
+                fast = mode == OUT_OF_PLACE
             else:
-                n_set, n_reset = i_set, i_reset
-            tot.set_pj += n_set * cell.set_pj
-            tot.reset_pj += n_reset * cell.reset_pj
-            tot.user_set_cells += n_set
-            tot.user_reset_cells += n_reset
-        elif len(item) > 11:
-            # Block erase: clean first if the pool is low, then place.
-            er = self.erase
-            while er.pools[b].need_erase():
-                if not (yield from er.clean(b)):
-                    break
-            while True:
-                # With block erase the leveler is "none": the write path's
-                # line is the logical line, the pool decides where it goes.
-                phys, mode = er.place(b, item[10])
-                if mode != WAIT:
-                    break
-                if not (yield from er.clean(b)):
-                    raise RuntimeError("block erase: no initialized line and nothing to clean")
+                fast = self.preset.pop(phys, False)
+                tot.hint_hits += fast
             o_ns, o_set, o_reset, i_set, i_reset = item[11]
-            if mode == OUT_OF_PLACE:
+            if fast:
                 service, pre, n_set, n_reset = o_ns, 0.0, o_set, o_reset
             else:
                 n_set, n_reset = i_set, i_reset
@@ -597,7 +593,7 @@ class TimingEngine:
             tot.user_reset_cells += n_reset
             per_reset, per_set = cell.cells_per_round(self.round_budget_ua)
             cur = max(min(n_reset, per_reset) * cell.reset_ua, min(n_set, per_set) * cell.set_ua)
-            rr = sr = 0            # no cancellation or pausing of placed writes
+            rr = sr = 0            # no cancellation or pausing of these writes
         if pre > 0 and idx >= 0 and self.cost_at_service:
             tot.read_pj += (self.line_bits + self.path.scheme.flag_cells) * cell.read_pj
         t0 = env.now
@@ -708,4 +704,7 @@ class TimingEngine:
         tot.bank_busy_ns = np.asarray(tot.bank_busy_ns, dtype=float)
         if self.agent is not None:
             self.agent.finish(tot.simulated_ns)
+            tot.refresh_pj = self.agent.energy_pj
+        if self.erase is not None:
+            tot.erase_pj = self.erase.energy_pj
         return tot

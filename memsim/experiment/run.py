@@ -62,7 +62,8 @@ def summarize(cfg: RunConfig, tot: TimingTotals, path: WritePath) -> dict[str, A
     }
     s.update(latency_stats(lat[op == 0], "read_latency"))
     s.update(latency_stats(lat[op == 1], "write_latency"))
-    energy = tot.read_pj + tot.set_pj + tot.reset_pj + tot.mlc_pj + tot.cancelled_pj + tot.preset_pj
+    energy = (tot.read_pj + tot.set_pj + tot.reset_pj + tot.mlc_pj + tot.cancelled_pj + tot.preset_pj
+              + tot.refresh_pj + tot.erase_pj)
     bits = n * line_bytes * 8
     s.update({
         "energy_pj": energy,
@@ -72,6 +73,7 @@ def summarize(cfg: RunConfig, tot: TimingTotals, path: WritePath) -> dict[str, A
         "energy_mlc_program_pj": tot.mlc_pj,
         "energy_cancelled_pj": tot.cancelled_pj,
         "energy_preset_pj": tot.preset_pj,
+        "energy_refresh_pj": tot.refresh_pj,
         "energy_per_bit_pj": energy / bits if bits else 0.0,
         "cells_programmed_per_write": (tot.user_set_cells + tot.user_reset_cells) / tot.writes
         if tot.writes else 0.0,
@@ -98,27 +100,22 @@ def summarize(cfg: RunConfig, tot: TimingTotals, path: WritePath) -> dict[str, A
     return s
 
 
-def refresh_fields(cfg: RunConfig, tot: TimingTotals, agent: RefreshAgent | None,
-                   summary: dict[str, Any]) -> dict[str, Any]:
-    """Refresh cost and error keys of the summary (energy total includes refresh)."""
+def refresh_fields(tot: TimingTotals, agent: RefreshAgent, summary: dict[str, Any]) -> dict[str, Any]:
+    """Refresh cost and error keys of the summary."""
     plan = agent.plan
     sim = tot.simulated_ns
     n = agent.refreshes
     busy = float(tot.bank_busy_ns.sum())
     all_cells = float(agent.engine.path.line_cells.sum())
-    energy = summary["energy_pj"] + agent.energy_pj
-    bits = summary["requests"] * cfg.array.line_bytes * 8
+    energy = summary["energy_pj"]
     return {
-        "energy_refresh_pj": agent.energy_pj,
-        "energy_pj": energy,
-        "energy_per_bit_pj": energy / bits if bits else 0.0,
         "refresh_policy": plan.policy,
         "refresh_age_needed_s": plan.age_s,
         "refresh_interval_s": plan.interval_s,
         "refreshes": n,
         "refreshes_per_s": n / sim * 1e9 if sim > 0 else 0.0,
         "refresh_bandwidth_share": tot.refresh_busy_ns / busy if busy > 0 else 0.0,
-        "refresh_energy_share": agent.energy_pj / energy if energy > 0 else 0.0,
+        "refresh_energy_share": tot.refresh_pj / energy if energy > 0 else 0.0,
         "refresh_wear_share": agent.cells / all_cells if all_cells > 0 else 0.0,
         "rber_at_refresh": agent.rber_sum / n if n else float(
             plan.rber(plan.interval_s) if np.isfinite(plan.interval_s) else np.nan),
@@ -127,15 +124,13 @@ def refresh_fields(cfg: RunConfig, tot: TimingTotals, agent: RefreshAgent | None
     }
 
 
-def erase_fields(cfg: RunConfig, engine: TimingEngine, summary: dict[str, Any]) -> dict[str, Any]:
+def erase_fields(engine: TimingEngine, summary: dict[str, Any]) -> dict[str, Any]:
     """Block erase-ahead keys; for in-place schemes write amplification counts leveler moves."""
     if engine.erase is None:
         return {"write_amplification": 1.0 + summary["leveling_move_writes"] / max(1, summary["writes"])}
     e = engine.erase.summary()
-    energy = summary["energy_pj"] + e["energy_erase_pj"]
-    bits = summary["requests"] * cfg.array.line_bytes * 8
-    return {**e, "energy_pj": energy, "energy_per_bit_pj": energy / bits if bits else 0.0,
-            "erase_energy_share": e["energy_erase_pj"] / energy if energy > 0 else 0.0}
+    energy = summary["energy_pj"]
+    return {**e, "erase_energy_share": e["energy_erase_pj"] / energy if energy > 0 else 0.0}
 
 
 def simulate(config: str | Path | Mapping | RunConfig | None = None, **overrides: Any) -> RunResult:
@@ -155,8 +150,8 @@ def simulate(config: str | Path | Mapping | RunConfig | None = None, **overrides
     engine = TimingEngine(cfg, source, path, plan, np.random.default_rng([cfg.run.seed, 1]))
     tot = engine.run()
     summary = summarize(cfg, tot, path)
-    summary.update(refresh_fields(cfg, tot, engine.agent, summary))
-    summary.update(erase_fields(cfg, engine, summary))
+    summary.update(refresh_fields(tot, engine.agent, summary))
+    summary.update(erase_fields(engine, summary))
     summary.update(source_fields(source))
     tables = {"latency_histogram": latency_histogram(tot.latency_ns, tot.op)}
     return RunResult(summary, tables, cfg.model_dump(), cfg.run.seed, __version__,

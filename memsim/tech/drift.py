@@ -464,10 +464,14 @@ def line_fail_prob(
         )
     _, P, _ = _bit_error_parts(cell, drift, ages_s, temp_k)
     w = cell.level_probs(level_probs)
+    return _p_fail(cell, P, w, _rber_by_level(cell, P) @ w, n_cells, correctable_bits, method)
+
+
+def _p_fail(cell: MlcCell, P: np.ndarray, w: np.ndarray, rber: np.ndarray, n_cells: int,
+            correctable_bits: int, method: str) -> np.ndarray:
+    """P(more than ``correctable_bits`` errors in the line), by ``method``."""
     if method == "binomial":
-        return p_line_fail_binomial(
-            _rber_by_level(cell, P) @ w, n_cells * cell.bits_per_cell, correctable_bits
-        )
+        return p_line_fail_binomial(rber, n_cells * cell.bits_per_cell, correctable_bits)
     return p_line_fail_exact(_cell_pmf(cell, P, w), n_cells, correctable_bits)
 
 
@@ -540,10 +544,7 @@ def error_table(
     w = cell.level_probs(level_probs)
     by_level = _rber_by_level(cell, P)
     rber = by_level @ w
-    if method == "binomial":
-        pfail = p_line_fail_binomial(rber, n_cells * cell.bits_per_cell, correctable_bits)
-    else:
-        pfail = p_line_fail_exact(_cell_pmf(cell, P, w), n_cells, correctable_bits)
+    pfail = _p_fail(cell, P, w, rber, n_cells, correctable_bits, method)
     cols: dict[str, np.ndarray] = {"age_s": ages, "in_window": inside}
     for lv in range(cell.n_levels):
         cols[f"cross_prob_level_{lv}"] = S[:, lv, lv]
