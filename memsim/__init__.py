@@ -16,9 +16,10 @@ _LAZY = {
     "compare": ("memsim.experiment.compare", "compare"),
     "drift_report": ("memsim.experiment.drift", "drift_report"),
     "point_stats": ("memsim.experiment.sweep", "point_stats"),
+    "cell_model": ("memsim.experiment.cell", "cell_model"),
 }
 
-__all__ = ["RunConfig", "RunResult", "__version__", "compare", "drift_report", "lifetime",
+__all__ = ["RunConfig", "RunResult", "__version__", "cell_model", "compare", "drift_report", "lifetime",
            "load_config", "point_stats", "simulate", "sweep"]
 
 

@@ -14,7 +14,8 @@ import click
 
 from memsim.errors import UserError
 
-COMMAND_MODULES = ["memsim.cli.run", "memsim.cli.sweep", "memsim.cli.lifetime", "memsim.cli.trace", "memsim.cli.drift", "memsim.cli.compare"]
+COMMAND_MODULES = ["memsim.cli.run", "memsim.cli.sweep", "memsim.cli.lifetime", "memsim.cli.trace", "memsim.cli.drift", "memsim.cli.compare",
+                   "memsim.cli.cell"]
 
 
 @click.group(context_settings={"help_option_names": ["-h", "--help"]})
