@@ -89,6 +89,20 @@ class CellSection(Section):
     drift_activation_ev: float | None = Field(
         None, ge=0, description="Activation energy of drift, eV; none = reference temperature only.")
     drift_reference_k: float = Field(300.0, gt=0, description="Temperature the drift values hold at, K.")
+    # Crystallization of the amorphous state at temperature (memsim/tech/retention.py).
+    retention_activation_ev: float | None = Field(
+        _SLC.get("retention_activation_ev"), gt=0,
+        description="Activation energy of crystallization of the amorphous state, eV; none = not modeled.")
+    retention_ref_k: float = Field(_SLC.get("retention_ref_k", 358.15), gt=0,
+                                   description="Temperature of the retention anchor, K.")
+    retention_ref_s: float = Field(_SLC.get("retention_ref_s", 3.15576e8), gt=0,
+                                   description="Age at which retention_fail_fraction of amorphous cells "
+                                               "have crystallized at retention_ref_k, s.")
+    retention_fail_fraction: float = Field(_SLC.get("retention_fail_fraction", 0.5), gt=0, lt=1,
+                                           description="Share of failed cells at the retention anchor.")
+    retention_avrami_n: float = Field(_SLC.get("retention_avrami_n", 3.0), gt=0,
+                                      description="Avrami exponent of crystallization (Weibull shape of "
+                                                  "failure times).")
 
 
 class ArraySection(Section):

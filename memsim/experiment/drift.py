@@ -38,16 +38,34 @@ def drift_report(config: str | Path | Mapping | RunConfig | None = None, **overr
     cell, drift = mlc_cell(cfg), drift_params(cfg)
     n_cells = -(-cfg.array.line_bytes * 8 // cfg.cell.bits_per_cell)
     n_bits = n_cells * cfg.cell.bits_per_cell
-    ra = refresh_age(cell, drift, n_cells, r.correctable_bits, r.max_fail_prob, r.temperature_k,
+    notes: list[str] = []
+    # Drift at another temperature needs its activation energy; crystallization
+    # has its own, so the retention-limited age can be given either way.
+    drift_known = r.temperature_k == drift.drift_reference_k or drift.drift_activation_ev is not None
+    if not drift_known:
+        notes.append(f"drift at {r.temperature_k} K needs cell.drift_activation_ev (no default: see "
+                     "memsim/tech/drift.py); refresh_age_s is null, the table shows crystallization only")
+    used = drift if drift_known else drift.without_drift()
+    ra = refresh_age(cell, used, n_cells, r.correctable_bits, r.max_fail_prob, r.temperature_k,
                      method=r.fail_model)
-    hi = math.log10(drift.drift_t_max_s)
+    retention_age = None
+    if drift.retention is not None:
+        rr = refresh_age(cell, drift.without_drift(), n_cells, r.correctable_bits, r.max_fail_prob,
+                         r.temperature_k, method=r.fail_model)
+        retention_age = rr.age_s if rr.status == "found" else None
+        if rr.status != "found":
+            notes.append(f"crystallization alone: {rr.status.replace('_', ' ')} "
+                         f"(window {drift.drift_t0_s:g} .. {rr.window_end_s:.3g} s)")
+    else:
+        notes.append("crystallization of the amorphous state not modeled (cell.retention_activation_ev unset)")
+    hi = math.log10(used.drift_t_max_s / used.acceleration(r.temperature_k))
     ages = list(10.0 ** np.arange(0, math.floor(hi) + 1))
     if math.isfinite(ra.age_s):
         ages.append(ra.age_s)
     ages = np.unique(np.asarray(ages))
-    table = error_table(cell, drift, ages, n_cells, r.correctable_bits, r.temperature_k,
+    table = error_table(cell, used, ages, n_cells, r.correctable_bits, r.temperature_k,
                         method=r.fail_model)
-    dense = error_table(cell, drift, np.logspace(0, hi, 200), n_cells, r.correctable_bits,
+    dense = error_table(cell, used, np.logspace(0, hi, 200), n_cells, r.correctable_bits,
                         r.temperature_k, method=r.fail_model)
     limit = rber_limit(n_bits, r.correctable_bits, r.max_fail_prob)
     at_age = float(table.loc[table["age_s"] == ra.age_s, "rber_line"].iloc[0]) if math.isfinite(
@@ -58,12 +76,17 @@ def drift_report(config: str | Path | Mapping | RunConfig | None = None, **overr
         "correctable_bits": r.correctable_bits,
         "max_fail_prob": r.max_fail_prob,
         "temperature_k": r.temperature_k,
-        "refresh_age_s": ra.age_s,
-        "refresh_age_years": ra.age_s / YEAR_S,
-        "refresh_age_status": ra.status,
+        "refresh_age_s": ra.age_s if drift_known else None,
+        "refresh_age_years": ra.age_s / YEAR_S if drift_known else None,
+        "refresh_age_status": ra.status if drift_known else "drift_unknown_at_temperature",
+        "retention_refresh_age_s": retention_age,
+        "retention_refresh_age_years": retention_age / YEAR_S if retention_age is not None else None,
+        "retention_median_years": (drift.retention.median_s(r.temperature_k) / YEAR_S
+                                   if drift.retention is not None else None),
         "rber_at_refresh": at_age,
         "rber_limit": limit,
         "drift_window_end_s": ra.window_end_s,
+        "note": "; ".join(notes) if notes else "",
     }
     return RunResult(summary, {"drift_errors": table, "drift_errors_dense": dense},
                      cfg.model_dump(), cfg.run.seed, __version__)
@@ -73,6 +96,9 @@ def save_drift_figure(result: RunResult, folder: str | Path) -> Path:
     from memsim.report.drift_plot import plot_rber
 
     s = result.summary
-    age = s["refresh_age_s"] if math.isfinite(s["refresh_age_s"]) else None
+    age = s["refresh_age_s"] if s["refresh_age_s"] is not None else s["retention_refresh_age_s"]
+    age = age if age is not None and math.isfinite(age) else None
+    what = ("drift and crystallization" if s["refresh_age_s"] is not None and s["retention_median_years"]
+            is not None else "crystallization only" if s["refresh_age_s"] is None else "drift only")
     return plot_rber(result.tables["drift_errors_dense"], s["rber_limit"], age,
-                     Path(folder) / "drift_rber.png")
+                     Path(folder) / "drift_rber.png", subtitle=f"at {s['temperature_k']:g} K, {what}")

@@ -19,7 +19,8 @@ from matplotlib.figure import Figure
 _LEVEL_COL = re.compile(r"^rber_level_(\d+)$")
 
 
-def rber_figure(table: pd.DataFrame, ecc_limit: float, refresh_age_s: float | None) -> Figure:
+def rber_figure(table: pd.DataFrame, ecc_limit: float, refresh_age_s: float | None,
+                subtitle: str = "") -> Figure:
     """Build the figure (log-log).  Zero error rates are left out (log axis).
 
     ``ecc_limit`` is the raw bit error rate the line's ECC tolerates at the
@@ -66,14 +67,14 @@ def rber_figure(table: pd.DataFrame, ecc_limit: float, refresh_age_s: float | No
         ax.text(
             0.01,
             0.98,
-            f"no drift errors: level {', '.join(silent)}",
+            f"no errors: level {', '.join(silent)}",
             transform=ax.transAxes,
             fontsize="small",
             va="top",
         )
     ax.set_xlabel("line age since last write (s)")
     ax.set_ylabel("raw bit error rate (errors per bit)")
-    ax.set_title(title)
+    ax.set_title(title + (f"\n{subtitle}" if subtitle else ""), fontsize="medium")
     ax.grid(True, which="major", alpha=0.3)
     ax.legend(loc="best", fontsize="small")
     fig.tight_layout()
@@ -81,13 +82,14 @@ def rber_figure(table: pd.DataFrame, ecc_limit: float, refresh_age_s: float | No
 
 
 def plot_rber(
-    table: pd.DataFrame, ecc_limit: float, refresh_age_s: float | None, path: str | os.PathLike[str]
+    table: pd.DataFrame, ecc_limit: float, refresh_age_s: float | None, path: str | os.PathLike[str],
+    subtitle: str = "",
 ) -> Path:
     """Draw :func:`rber_figure` and save it to ``path`` (format from the
     suffix, written to a temp file then renamed so a crash leaves no half file)."""
     out = Path(path)
     out.parent.mkdir(parents=True, exist_ok=True)
-    fig = rber_figure(table, ecc_limit, refresh_age_s)
+    fig = rber_figure(table, ecc_limit, refresh_age_s, subtitle)
     fd, tmp = tempfile.mkstemp(dir=out.parent, prefix=f".{out.stem}.", suffix=out.suffix)
     try:
         with os.fdopen(fd, "wb") as fh:

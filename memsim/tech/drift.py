@@ -15,6 +15,10 @@ Temperature speeds drift up like a thermally activated process: an age ``t``
 at temperature ``T`` counts as ``t * exp(Ea/k (1/T_ref - 1/T))`` at the
 reference temperature the drift parameters were measured at.
 
+Crystallization (:mod:`memsim.tech.retention`): amorphous levels also
+crystallize at temperature; a crystallized cell reads as the lowest level.
+This is independent of drift and is combined with it per cell.
+
 Errors.  Drift only raises resistance, so a cell programmed to level ``l`` is
 misread when ``log10 R(t)`` passes the read threshold above ``l``; it may pass
 several thresholds.  Reads below the target (a normal ``nu`` has a small
@@ -49,6 +53,7 @@ from scipy import constants, integrate, optimize, special, stats
 
 from memsim.errors import ConfigError
 from memsim.tech.mlc import MlcCell, bit_distance_matrix, level_to_bits
+from memsim.tech.retention import Retention
 
 K_B_EV_PER_K: float = constants.physical_constants["Boltzmann constant in eV/K"][0]
 LINE_FAIL_METHODS = ("binomial", "exact")
@@ -71,9 +76,17 @@ class DriftParams:
         Longest (reference-temperature) age for which the law is trusted.
     drift_activation_ev:
         Activation energy of drift acceleration; ``None`` = only the reference
-        temperature is allowed.
+        temperature is allowed.  There is no default: drift is structural
+        relaxation with a spread of activation energies, so its speed-up with
+        temperature does not follow one Arrhenius law and the drift exponent
+        itself changes with temperature (Ielmini, Lacaita, Mantegazza, IEEE
+        Trans. Electron Devices 54, 2007; from memory).  A single value must
+        come from the user's own device data.
     drift_reference_k:
         Temperature at which the drift parameters hold.
+    retention:
+        Crystallization of amorphous levels at temperature
+        (:class:`memsim.tech.retention.Retention`); ``None`` = not modeled.
     """
 
     drift_nu: tuple[float, ...]
@@ -82,6 +95,7 @@ class DriftParams:
     drift_t_max_s: float = 1e9
     drift_activation_ev: float | None = None
     drift_reference_k: float = 300.0
+    retention: Retention | None = None
 
     def __post_init__(self) -> None:
         nu = tuple(float(v) for v in np.atleast_1d(self.drift_nu))
@@ -132,7 +146,13 @@ class DriftParams:
             for k in ("drift_t0_s", "drift_t_max_s", "drift_activation_ev", "drift_reference_k")
             if k in d
         }
-        return cls(drift_nu=tuple(nu), drift_nu_sd=sd, **kw)
+        return cls(drift_nu=tuple(nu), drift_nu_sd=sd, retention=d.get("retention"), **kw)
+
+    def without_drift(self) -> DriftParams:
+        """The same cell with drift switched off (crystallization only)."""
+        n = len(self.drift_nu)
+        return DriftParams((0.0,) * n, (0.0,) * n, self.drift_t0_s, self.drift_t_max_s, 0.0,
+                           self.drift_reference_k, self.retention)
 
     def acceleration(self, temp_k: float | None) -> float:
         """Arrhenius factor of ``temp_k`` against the reference (1 if ``None``)."""
@@ -310,12 +330,28 @@ def crossing_prob_mc(
 
 
 # ----------------------------------------------------------- bit errors
+def crystallized_prob(drift: DriftParams, ages_s: np.ndarray | Sequence[float] | float,
+                      temp_k: float | None = None) -> np.ndarray:
+    """Probability that an amorphous cell has crystallized by each (wall-clock)
+    age at ``temp_k``; zeros when retention is not modeled."""
+    age = np.atleast_1d(np.asarray(ages_s, dtype=np.float64))
+    if drift.retention is None:
+        return np.zeros(age.size)
+    return drift.retention.fail_prob(age, temp_k)
+
+
 def _bit_error_parts(
     cell: MlcCell, drift: DriftParams, ages_s: np.ndarray | Sequence[float] | float, temp_k: float | None
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     x, inside = drift_decades(ages_s, drift, temp_k)
     S = _upward_survival(cell, drift, x)
-    return S, _landing(S), inside
+    P = _landing(S)
+    if drift.retention is not None:
+        # A crystallized cell reads as the lowest level, whatever it drifted to.
+        f = crystallized_prob(drift, ages_s, temp_k)[:, None, None]
+        P[:, 1:, :] *= 1.0 - f
+        P[:, 1:, 0] += f[:, :, 0]
+    return S, P, inside
 
 
 def _rber_by_level(cell: MlcCell, P: np.ndarray) -> np.ndarray:
@@ -389,8 +425,11 @@ def rber_mc(
     nu = np.asarray(drift.drift_nu)[lv] + np.asarray(drift.drift_nu_sd)[lv] * rng.standard_normal(n_cells)
     stored = level_to_bits(lv, cell.bits_per_cell)
     est, se = np.empty(x.size), np.empty(x.size)
+    cryst = crystallized_prob(drift, ages_s, temp_k)
     for a, xa in enumerate(x):
         read = np.maximum(cell.read_level(r0 + nu * xa), lv)  # only upward misreads are drift
+        if drift.retention is not None:
+            read = np.where((lv > 0) & (rng.random(n_cells) < cryst[a]), 0, read)
         flips = (level_to_bits(read, cell.bits_per_cell) != stored).sum(axis=1) / cell.bits_per_cell
         est[a] = flips.mean()
         se[a] = flips.std(ddof=1) / math.sqrt(n_cells)
@@ -534,7 +573,7 @@ def error_table(
 
     Columns: ``age_s``, ``in_window`` (reference-temperature age inside the
     drift law's window), ``cross_prob_level_<l>``, ``rber_level_<l>``,
-    ``rber_line`` and ``p_uncorrectable`` (more than ``correctable_bits``
+    ``cryst_prob`` (an amorphous cell has crystallized), ``rber_line`` and ``p_uncorrectable`` (more than ``correctable_bits``
     errors in the line).
     """
     if method not in LINE_FAIL_METHODS:
@@ -550,6 +589,7 @@ def error_table(
         cols[f"cross_prob_level_{lv}"] = S[:, lv, lv]
     for lv in range(cell.n_levels):
         cols[f"rber_level_{lv}"] = by_level[:, lv]
+    cols["cryst_prob"] = crystallized_prob(drift, ages, temp_k)
     cols["rber_line"] = rber
     cols["p_uncorrectable"] = pfail
     return pd.DataFrame(cols)

@@ -3,6 +3,7 @@ from __future__ import annotations
 
 from memsim.tech.drift import DriftParams
 from memsim.tech.mlc import MlcCell
+from memsim.tech.retention import Retention
 
 
 def mlc_cell(cfg) -> MlcCell:
@@ -32,10 +33,19 @@ def mlc_cell(cfg) -> MlcCell:
     })
 
 
+def retention(cfg) -> Retention | None:
+    """Crystallization of amorphous levels, or None when the config has no activation energy for it."""
+    c = cfg.cell
+    if c.retention_activation_ev is None:
+        return None
+    return Retention(c.retention_activation_ev, c.retention_ref_k, c.retention_ref_s,
+                     c.retention_fail_fraction, c.retention_avrami_n)
+
+
 def drift_params(cfg) -> DriftParams:
     c = cfg.cell
     return DriftParams.from_dict({
         "drift_nu": c.drift_nu, "drift_nu_rel_sd": c.drift_nu_rel_sd, "drift_t0_s": c.drift_t0_s,
         "drift_t_max_s": c.drift_t_max_s, "drift_activation_ev": c.drift_activation_ev,
-        "drift_reference_k": c.drift_reference_k,
+        "drift_reference_k": c.drift_reference_k, "retention": retention(cfg),
     }, 1 << c.bits_per_cell)
