@@ -46,6 +46,8 @@ class RunSection(Section):
 
 class CellSection(Section):
     preset: str = Field("pcm_slc", description="Technology preset data file the defaults come from.")
+    technology: Literal["pcm", "reram", "stt_mram"] = Field(
+        "pcm", description="Cell technology (memsim/tech/technology.py): pcm, reram or stt_mram.")
     read_ns: float = Field(_SLC["read_ns"], gt=0, description="Array read latency, ns.")
     set_ns: float = Field(_SLC["set_ns"], gt=0, description="SET pulse width, ns.")
     reset_ns: float = Field(_SLC["reset_ns"], gt=0, description="RESET pulse width, ns.")
@@ -89,6 +91,10 @@ class CellSection(Section):
     drift_activation_ev: float | None = Field(
         None, ge=0, description="Activation energy of drift, eV; none = reference temperature only.")
     drift_reference_k: float = Field(300.0, gt=0, description="Temperature the drift values hold at, K.")
+    # STT-MRAM switching, thermally activated regime (memsim/tech/technology.py).
+    stt_delta: float = Field(60.0, gt=0, description="STT-MRAM thermal stability factor (energy barrier / kT).")
+    stt_ic0_ua: float = Field(200.0, gt=0, description="STT-MRAM critical switching current, uA.")
+    stt_attempt_ns: float = Field(1.0, gt=0, description="STT-MRAM attempt time tau0, ns.")
     # Crystallization of the amorphous state at temperature (memsim/tech/retention.py).
     retention_activation_ev: float | None = Field(
         _SLC.get("retention_activation_ev"), gt=0,

@@ -12,6 +12,7 @@ from memsim.policy.write import SCHEMES, make_scheme
 from memsim.policy.writepath import WritePath
 from memsim.tech.mlc_write import MlcProgrammer
 from memsim.tech.models import mlc_cell
+from memsim.tech.technology import uses_verify
 from memsim.workload.chunk import WRITE, Chunk
 from memsim.workload.content import DataModel
 from memsim.workload.synthetic import SyntheticSource
@@ -61,6 +62,12 @@ def check_names(cfg: RunConfig, where_prefix: str = "") -> None:
                 value = {"write.scheme": cfg.write.scheme, "cell.bits_per_cell": cfg.cell.bits_per_cell,
                          "leveling.scheme": cfg.leveling.scheme}[key]
                 raise ConfigError(key, repr(value), f"{allowed} with controller.hint_preset")
+    if cfg.cell.technology != "pcm":
+        for key, bad, value in (("write.scheme", SCHEMES[cfg.write.scheme].out_of_place, cfg.write.scheme),
+                                ("controller.hint_preset", cfg.controller.hint_preset, True)):
+            if bad:
+                raise ConfigError(key, repr(value), f"a PCM-only feature; not with cell.technology "
+                                                    f"{cfg.cell.technology}")
     if SCHEMES[cfg.write.scheme].out_of_place and cfg.cell.bits_per_cell > 1:
         raise ConfigError("write.scheme", repr(cfg.write.scheme),
                           "a per-cell scheme with multi-level cells (block_erase models SLC)")
@@ -74,7 +81,7 @@ def build_path(cfg: RunConfig, rng: np.random.Generator) -> WritePath:
     w = cfg.workload
     data = DataModel(w.data, cfg.array.line_bytes, w.flip_fraction, w.one_fraction)
     mlc = None
-    if cfg.cell.bits_per_cell > 1:
+    if uses_verify(cfg):
         mlc = MlcProgrammer(mlc_cell(cfg), cfg.array.bank_budget_ua, cfg.cell.reset_ua, rng)
     return WritePath(leveler, scheme, data, rng, mlc=mlc)
 

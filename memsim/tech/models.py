@@ -4,6 +4,7 @@ from __future__ import annotations
 from memsim.tech.drift import DriftParams
 from memsim.tech.mlc import MlcCell
 from memsim.tech.retention import Retention
+from memsim.tech.technology import technology
 
 
 def mlc_cell(cfg) -> MlcCell:
@@ -24,7 +25,7 @@ def mlc_cell(cfg) -> MlcCell:
         "program_sigma_decades": c.program_sigma_decades,
         "verify_band_sigma": c.verify_band_sigma,
         "pv_model": c.pv_model,
-        "pv_mean_iterations": c.pv_mean_iterations,
+        "pv_mean_iterations": technology(cfg).iterations(cfg),
         "pv_max_iterations": c.pv_max_iterations,
         "pulse_ns": pulse_ns,
         "pulse_pj": pulse_pj,
@@ -36,7 +37,7 @@ def mlc_cell(cfg) -> MlcCell:
 def retention(cfg) -> Retention | None:
     """Crystallization of amorphous levels, or None when the config has no activation energy for it."""
     c = cfg.cell
-    if c.retention_activation_ev is None:
+    if c.retention_activation_ev is None or not technology(cfg).crystallizes:
         return None
     return Retention(c.retention_activation_ev, c.retention_ref_k, c.retention_ref_s,
                      c.retention_fail_fraction, c.retention_avrami_n)
@@ -44,8 +45,9 @@ def retention(cfg) -> Retention | None:
 
 def drift_params(cfg) -> DriftParams:
     c = cfg.cell
+    n = 1 << c.bits_per_cell
     return DriftParams.from_dict({
-        "drift_nu": c.drift_nu, "drift_nu_rel_sd": c.drift_nu_rel_sd, "drift_t0_s": c.drift_t0_s,
+        "drift_nu": c.drift_nu if technology(cfg).drifts else [0.0] * n, "drift_nu_rel_sd": c.drift_nu_rel_sd, "drift_t0_s": c.drift_t0_s,
         "drift_t_max_s": c.drift_t_max_s, "drift_activation_ev": c.drift_activation_ev,
         "drift_reference_k": c.drift_reference_k, "retention": retention(cfg),
     }, 1 << c.bits_per_cell)
