@@ -121,7 +121,7 @@ def test_closed_loop_rewrites_reset_drift_at_their_real_times():
     # Closed loop: write times are known only when the source hands requests
     # over; a sequential rewrite every ~2 ms stays below A / S ~ 4.4 ms.
     cfg, eng, tot = _engine(**{"refresh.policy": "drift", "workload.pattern": "sequential",
-                               "workload.read_fraction": 0.0, "workload.requests": 10000,
+                               "workload.read_fraction": 0.0, "workload.requests": 16000,
                                "workload.arrival": "closed", "workload.outstanding": 2})
     assert tot.simulated_ns > 2 * eng.plan.threshold_ns
     assert eng.agent.refreshes == 0

@@ -54,7 +54,7 @@ def drift_report(config: str | Path | Mapping | RunConfig | None = None, **overr
                          r.temperature_k, method=r.fail_model)
         retention_age = rr.age_s if rr.status == "found" else None
         if rr.status != "found":
-            notes.append(f"crystallization alone: {rr.status.replace('_', ' ')} "
+            notes.append(f"without drift (crystallization, unconverged cells): {rr.status.replace('_', ' ')} "
                          f"(window {drift.drift_t0_s:g} .. {rr.window_end_s:.3g} s)")
     else:
         notes.append("crystallization of the amorphous state not modeled (cell.retention_activation_ev unset)")

@@ -96,6 +96,8 @@ def summarize(cfg: RunConfig, tot: TimingTotals, path: WritePath) -> dict[str, A
         "cells_per_ns": (tot.user_set_cells + tot.user_reset_cells + tot.move_cells) / sim
         if sim > 0 else 0.0,
     })
+    if path.mlc is not None:
+        s.update(path.mlc.summary())
     s.update(lifetime_fields(cfg, path, tot.writes * line_bytes / sim * 1e9 if sim > 0 else 0.0))
     return s
 

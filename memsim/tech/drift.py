@@ -19,6 +19,11 @@ Crystallization (:mod:`memsim.tech.retention`): amorphous levels also
 crystallize at temperature; a crystallized cell reads as the lowest level.
 This is independent of drift and is combined with it per cell.
 
+Unconverged cells.  A cell that still fails to verify at the iteration cap
+(probability :meth:`MlcCell.p_unconverged` per level) keeps an R0 outside
+its verify band: the programming normal conditioned on ``|z| > k``.  These
+cells are misread from time 0 on, in either direction.
+
 Errors.  Drift only raises resistance, so a cell programmed to level ``l`` is
 misread when ``log10 R(t)`` passes the read threshold above ``l``; it may pass
 several thresholds.  Reads below the target (a normal ``nu`` has a small
@@ -288,6 +293,29 @@ def _landing(S: np.ndarray) -> np.ndarray:
     return P
 
 
+def _unconverged_landing(cell: MlcCell, drift: DriftParams, x: np.ndarray) -> np.ndarray:
+    """``P[a, l, j]`` for cells left outside their verify band at the iteration cap.
+
+    Their R0 is the programming normal conditioned on ``|z| > k``; since the
+    full normal is the mixture of the in-band and out-of-band parts,
+    ``S_out = (S_full - (1 - q) S_band) / q`` with ``q = P(|z| > k)``.  Misreads
+    below the target count here (the cell never reached its band)."""
+    L, k = cell.n_levels, float(cell.verify_band_sigma)
+    mu, sig, th = cell.level_mu, cell.level_sigma, cell.thresholds
+    m, s = np.asarray(drift.drift_nu), np.asarray(drift.drift_nu_sd)
+    q = 2.0 * special.ndtr(-k)
+    P = np.zeros((x.size, L, L))
+    for a, xa in enumerate(x):
+        for lv in range(L):
+            mean, sd = mu[lv] + m[lv] * xa, math.hypot(sig[lv], s[lv] * xa)
+            full = special.ndtr(-(th - mean) / sd)
+            band = np.array([_survival_truncated(mu[lv], sig[lv], k, m[lv], s[lv], t, float(xa)) for t in th])
+            surv = np.clip((full - (1.0 - q) * band) / q, 0.0, 1.0)
+            surv = np.minimum.accumulate(np.concatenate([[1.0], surv, [0.0]]))
+            P[a, lv] = surv[:-1] - surv[1:]
+    return P
+
+
 def crossing_prob(
     cell: MlcCell,
     drift: DriftParams,
@@ -346,6 +374,9 @@ def _bit_error_parts(
     x, inside = drift_decades(ages_s, drift, temp_k)
     S = _upward_survival(cell, drift, x)
     P = _landing(S)
+    u = cell.p_unconverged() if cell.verify_band_sigma is not None else np.zeros(cell.n_levels)
+    if np.any(u > 0):
+        P = (1.0 - u)[None, :, None] * P + u[None, :, None] * _unconverged_landing(cell, drift, x)
     if drift.retention is not None:
         # A crystallized cell reads as the lowest level, whatever it drifted to.
         f = crystallized_prob(drift, ages_s, temp_k)[:, None, None]
@@ -421,13 +452,14 @@ def rber_mc(
     x, _ = drift_decades(ages_s, drift, temp_k)
     w = cell.level_probs(level_probs)
     lv = rng.choice(cell.n_levels, size=n_cells, p=w)
-    r0 = cell.sample_program_log10_r(lv, rng)
+    r0, unconv = cell.sample_written_log10_r(lv, rng)
     nu = np.asarray(drift.drift_nu)[lv] + np.asarray(drift.drift_nu_sd)[lv] * rng.standard_normal(n_cells)
     stored = level_to_bits(lv, cell.bits_per_cell)
     est, se = np.empty(x.size), np.empty(x.size)
     cryst = crystallized_prob(drift, ages_s, temp_k)
     for a, xa in enumerate(x):
-        read = np.maximum(cell.read_level(r0 + nu * xa), lv)  # only upward misreads are drift
+        read = cell.read_level(r0 + nu * xa)
+        read = np.where(unconv, read, np.maximum(read, lv))  # converged cells: only upward misreads are drift
         if drift.retention is not None:
             read = np.where((lv > 0) & (rng.random(n_cells) < cryst[a]), 0, read)
         flips = (level_to_bits(read, cell.bits_per_cell) != stored).sum(axis=1) / cell.bits_per_cell

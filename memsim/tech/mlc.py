@@ -347,13 +347,19 @@ class MlcCell:
 
     def sample_iterations(self, levels: np.ndarray | Sequence[int], rng: np.random.Generator) -> np.ndarray:
         """Iterations of each cell write (int32, same shape as ``levels``)."""
+        return self.sample_attempts(levels, rng)[0]
+
+    def sample_attempts(self, levels: np.ndarray | Sequence[int],
+                        rng: np.random.Generator) -> tuple[np.ndarray, np.ndarray]:
+        """Iterations of each cell write (capped, int32) and whether the cell
+        verified within the cap (the same draws as :meth:`sample_iterations`)."""
         lv = self._check_levels(levels)
         m = np.asarray(self.pv_mean_iterations)[lv]
         if self.pv_model == "geometric":
             n = rng.geometric(1.0 / m)
         else:
             n = 1 + rng.poisson(m - 1.0)
-        return np.minimum(n, self.pv_max_iterations).astype(np.int32)
+        return np.minimum(n, self.pv_max_iterations).astype(np.int32), n <= self.pv_max_iterations
 
     def sample_program_log10_r(
         self, levels: np.ndarray | Sequence[int], rng: np.random.Generator
@@ -368,3 +374,22 @@ class MlcCell:
             k = self.verify_band_sigma
             z = stats.truncnorm.rvs(-k, k, size=lv.shape, random_state=rng)
         return mu + sd * z
+
+    def sample_written_log10_r(self, levels: np.ndarray | Sequence[int],
+                               rng: np.random.Generator) -> tuple[np.ndarray, np.ndarray]:
+        """log10 R0 of written cells, counting the ones left unconverged at the
+        iteration cap (probability :meth:`p_unconverged`): those lie outside
+        the verify band (the programming normal conditioned on ``|z| > k``).
+        Returns R0 and the unconverged mask; without a band (or when no cell
+        can be left unconverged) this is :meth:`sample_program_log10_r`."""
+        lv = self._check_levels(levels)
+        u = self.p_unconverged()
+        if self.verify_band_sigma is None or not np.any(u > 0):
+            return self.sample_program_log10_r(lv, rng), np.zeros(lv.shape, dtype=bool)
+        r0 = self.sample_program_log10_r(lv, rng)
+        out = rng.random(lv.shape) < u[lv]
+        k = self.verify_band_sigma
+        z = stats.truncnorm.rvs(k, np.inf, size=int(out.sum()), random_state=rng)
+        z *= np.where(rng.random(z.size) < 0.5, -1.0, 1.0)
+        r0[out] = self.level_mu[lv[out]] + self.level_sigma[lv[out]] * z
+        return r0, out

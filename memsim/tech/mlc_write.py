@@ -2,12 +2,27 @@
 
 Each group of ``bits_per_cell`` bits of a line is one cell; its Gray-coded
 value is the cell's level.  A write programs the cells whose level changes
-(every cell under a full-line write).  Each programmed cell takes a sampled
-number of iterations (pulse + verify) for its target level
-(:meth:`MlcCell.sample_iterations`).  Cells are programmed in rounds limited
-by the bank's current budget, every pulse drawing up to ``pulse_ua``; a round
-lasts as long as its slowest cell.  Energy and wear (pulses) add up over
-cells.
+(every cell under a full-line write).  Each programmed cell needs a sampled
+number of attempts for its target level (:meth:`MlcCell.sample_attempts`),
+at most ``pv_max_iterations``.
+
+The cells of a line iterate in lock step: iteration ``k`` pulses every cell
+that has not verified yet, then verifies the line once.  The pulses of an
+iteration are driven in rounds limited by the bank's current budget, each
+pulse drawing ``pulse_ua``; a round lasts as long as the longest pulse among
+the cells still active.  As cells converge, later iterations need fewer
+rounds and draw less current, so::
+
+    program_ns = sum_k ( ceil(active_k / per_round) * max pulse of active_k + verify_ns )
+
+Energy and wear (pulses) add up over cells: a cell costs its attempts times
+``pulse + verify``.  A cell that still fails to verify at the cap stays
+outside its verify band: it is counted as unconverged and feeds the error
+rate right after the write (:mod:`memsim.tech.drift`).
+
+The timing engine holds one current per write (its peak, the first
+iteration); the falling current shows in the mean current this module
+reports, in time and in energy.
 """
 from __future__ import annotations
 
@@ -24,6 +39,9 @@ class MlcCost:
     energy_pj: np.ndarray      # per line (pulses + verifies)
     pulses: np.ndarray         # per line, summed over cells
     cells: np.ndarray          # programmed cells per line
+    unconverged: np.ndarray    # programmed cells per line left outside their verify band
+    iterations: np.ndarray     # lock-step iterations per line
+    charge_ua_ns: np.ndarray   # programming current integrated over the write, uA ns
 
 
 def cell_levels(lines: np.ndarray, bits_per_cell: int) -> np.ndarray:
@@ -41,31 +59,67 @@ def cell_levels(lines: np.ndarray, bits_per_cell: int) -> np.ndarray:
 
 
 class MlcProgrammer:
-    """Program-and-verify cost of batches of line writes."""
+    """Program-and-verify cost of batches of line writes, with running totals."""
 
     def __init__(self, cell: MlcCell, budget_ua: float, pulse_ua: float,
                  rng: np.random.Generator) -> None:
         self.cell = cell
         self.per_round = max(1, int(budget_ua // pulse_ua))
+        self.pulse_ua = pulse_ua
         self.rng = rng
-        self.iter_ns = np.asarray(cell.iteration_ns())
+        self.pulse_ns = np.asarray(cell.pulse_ns, dtype=np.float64)
         self.iter_pj = np.asarray(cell.iteration_pj())
+        self.totals = {"lines": 0, "cells": 0, "unconverged": 0, "iterations": 0,
+                       "program_ns": 0.0, "charge_ua_ns": 0.0, "peak_ua": 0.0}
 
     def cost(self, old: np.ndarray, new: np.ndarray, full: bool = False) -> MlcCost:
-        b = self.cell.bits_per_cell
-        lv_new = cell_levels(new, b)
+        c = self.cell
+        lv_new = self.levels(new)
         n, ncells = lv_new.shape
-        prog = np.ones_like(lv_new, dtype=bool) if full else (cell_levels(old, b) != lv_new)
+        prog = np.ones_like(lv_new, dtype=bool) if full else (self.levels(old) != lv_new)
         iters = np.zeros(lv_new.shape, dtype=np.int64)
-        iters[prog] = self.cell.sample_iterations(lv_new[prog], self.rng)
-        cell_ns = iters * self.iter_ns[lv_new]
+        unconv = np.zeros(lv_new.shape, dtype=bool)
+        iters[prog], conv = c.sample_attempts(lv_new[prog], self.rng)
+        unconv[prog] = ~conv
         energy = (iters * self.iter_pj[lv_new]).sum(axis=1)
-        # Round of each programmed cell: its rank among the line's programmed
-        # cells, divided by the cells one round may drive.
-        rank = np.cumsum(prog, axis=1) - 1
-        rnd = np.where(prog, rank // self.per_round, 0)
-        rounds = -(-ncells // self.per_round)
-        per_round = np.zeros((n, rounds))
-        rows = np.repeat(np.arange(n), ncells).reshape(n, ncells)
-        np.maximum.at(per_round, (rows[prog], rnd[prog]), cell_ns[prog])
-        return MlcCost(per_round.sum(axis=1), energy, iters.sum(axis=1), prog.sum(axis=1))
+        pulse = np.where(prog, self.pulse_ns[lv_new], 0.0)
+        program = np.zeros(n)
+        charge = np.zeros(n)
+        n_iter = iters.max(axis=1, initial=0)
+        for k in range(1, int(n_iter.max(initial=0)) + 1):
+            active = iters >= k
+            count = active.sum(axis=1)
+            busy = count > 0
+            rounds = -(-count // self.per_round)
+            longest = np.where(active, pulse, 0.0).max(axis=1)
+            program += np.where(busy, rounds * longest + c.verify_ns, 0.0)
+            # Every active cell draws pulse_ua for its own pulse.
+            charge += np.where(active, pulse, 0.0).sum(axis=1) * self.pulse_ua
+        cells = prog.sum(axis=1)
+        unconverged = unconv.sum(axis=1)
+        t = self.totals
+        t["lines"] += n
+        t["cells"] += int(cells.sum())
+        t["unconverged"] += int(unconverged.sum())
+        t["iterations"] += int(n_iter.sum())
+        t["program_ns"] += float(program.sum())
+        t["charge_ua_ns"] += float(charge.sum())
+        if n:
+            t["peak_ua"] = max(t["peak_ua"], float(np.minimum(cells, self.per_round).max()) * self.pulse_ua)
+        return MlcCost(program, energy, iters.sum(axis=1), cells, unconverged, n_iter, charge)
+
+    def levels(self, lines: np.ndarray) -> np.ndarray:
+        return cell_levels(lines, self.cell.bits_per_cell)
+
+    def summary(self) -> dict[str, float | None]:
+        """Totals over every line programmed so far (user writes, moves, refreshes)."""
+        t = self.totals
+        return {
+            "verify_cells_programmed": t["cells"],
+            "verify_unconverged_cells": t["unconverged"],
+            "verify_unconverged_share": t["unconverged"] / t["cells"] if t["cells"] else None,
+            "verify_iterations_per_line_mean": t["iterations"] / t["lines"] if t["lines"] else None,
+            "verify_program_ns_per_line_mean": t["program_ns"] / t["lines"] if t["lines"] else None,
+            "verify_current_mean_ua": t["charge_ua_ns"] / t["program_ns"] if t["program_ns"] else None,
+            "verify_current_peak_ua": t["peak_ua"],
+        }
