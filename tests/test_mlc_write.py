@@ -122,3 +122,70 @@ def test_converged_cells_stay_inside_the_verify_band() -> None:
     assert stats.kstest(z[~out], stats.truncnorm(-2.75, 2.75).cdf).pvalue > 1e-3
     u = cell.p_unconverged()[lv]
     assert out.mean() == pytest.approx(u.mean(), abs=4 * math.sqrt(u.mean() / lv.size))
+
+
+# ------------------------------------------------------------- tri-level cells
+def test_tri_level_pair_code() -> None:
+    from memsim.tech.mlc import TRI_PAIR_USED, TRI_PAIR_WORD, TRI_WORD_LEVELS
+
+    # Eight words on eight of the nine level pairs, a bijection onto them.
+    assert sorted(TRI_PAIR_WORD[a, b] for a, b in TRI_WORD_LEVELS) == list(range(8))
+    assert TRI_PAIR_USED.sum() == 8
+    # Neighbouring used pairs (one cell one level apart) differ in exactly one
+    # bit, the Gray property for pairs (as in Gray, US patent 2,632,058, 1953).
+    for a in range(3):
+        for b in range(3):
+            for da, db in ((1, 0), (0, 1)):
+                a2, b2 = a + da, b + db
+                if a2 < 3 and b2 < 3 and TRI_PAIR_USED[a, b] and TRI_PAIR_USED[a2, b2]:
+                    assert bin(int(TRI_PAIR_WORD[a, b] ^ TRI_PAIR_WORD[a2, b2])).count("1") == 1
+
+
+def test_tri_levels_round_trip_and_occupancy() -> None:
+    from memsim.tech.mlc import TRI_PAIR_WORD
+    from memsim.tech.mlc_write import tri_levels
+
+    rng = np.random.default_rng(8)
+    lines = rng.integers(0, 256, size=(300, 64), dtype=np.uint8)
+    lv = tri_levels(lines)
+    assert lv.shape == (300, 342)
+    words = TRI_PAIR_WORD[lv[:, 0::2], lv[:, 1::2]]
+    bits = ((words[..., None] >> np.array([2, 1, 0])) & 1).reshape(300, -1)[:, :512]
+    assert np.array_equal(bits, np.unpackbits(lines, axis=1))
+    # Random words: levels 0, 1, 2 in 3/8, 2/8, 3/8 of cells (counted over the 8 words).
+    cell = MlcCell(bits_per_cell=1, tri_level=True, level_log10_ohm=(3.0, 4.5, 6.0), program_sigma_decades=1 / 6,
+                   pv_mean_iterations=1.0, pulse_ns=100.0, pulse_pj=15.0, verify_ns=48.0, verify_pj=2.0)
+    freq = np.bincount(lv[:, :340].ravel(), minlength=3) / lv[:, :340].size
+    n = lv[:, :340].size
+    for f, p in zip(freq, cell.level_probs()):
+        assert abs(f - p) <= 5 * math.sqrt(p * (1 - p) / n * 2)  # pairs are correlated: 2x variance margin
+    assert cell.cells_per_line(512) == 342 and cell.bits_stored == 1.5
+
+
+def test_tri_level_rber_matches_monte_carlo_and_beats_two_bit_cells() -> None:
+    cfg3 = load_config({"cell": {"preset": "pcm_tri"}})
+    from memsim.tech.models import drift_params, mlc_cell
+
+    cell, drift = mlc_cell(cfg3), drift_params(cfg3)
+    ages = np.array([1e6, 1e8])
+    ref = line_rber(cell, drift, ages)
+    est, se = rber_mc(cell, drift, ages, 400_000, np.random.default_rng(21))
+    assert np.all(ref > 1e-4)
+    assert np.all(np.abs(est - ref) <= 4 * se)
+    # Wider margins: the tri-level line needs refresh far later than the 2-bit one.
+    cfg2 = load_config({"cell": {"preset": "pcm_mlc2"}})
+    a3 = refresh_age(cell, drift, 342, 8, 1e-9).age_s
+    a2 = refresh_age(mlc_cell(cfg2), drift_params(cfg2), 256, 8, 1e-9).age_s
+    assert a3 > 1000 * a2
+
+
+def test_tri_level_runs_and_is_rejected_where_slc_is_required() -> None:
+    from memsim.errors import ConfigError
+    from memsim.experiment.build import check_names
+
+    s = simulate(load_config({"cell": {"preset": "pcm_tri"}, "workload": {"requests": 2000}})).summary
+    # Full cells per 64-byte line: 342; data comparison programs only the changed ones.
+    assert 0 < s["verify_cells_programmed"] <= 342 * s["writes"]
+    with pytest.raises(ConfigError) as err:
+        check_names(load_config({"cell": {"preset": "pcm_tri"}, "controller": {"hint_preset": True}}))
+    assert err.value.where == "cell.tri_level"

@@ -65,6 +65,8 @@ class CellSection(Section):
         "normal", description="Distribution of cell endurance.")
     # Multi-level cells and drift (see memsim/tech/mlc.py, memsim/tech/drift.py).
     bits_per_cell: Literal[1, 2, 3] = Field(1, description="Bits stored per cell (1 = SLC).")
+    tri_level: bool = Field(False, description="Tri-level cells: three levels per cell, two cells per "
+                                               "3-bit word (bits_per_cell is then not used).")
     level_log10_ohm: list[float] = Field(_SLC["level_log10_ohm"],
                                          description="Target log10 resistance per level, ohm, lowest first.")
     read_thresholds_log10_ohm: list[float] | None = Field(

@@ -56,10 +56,12 @@ def check_names(cfg: RunConfig, where_prefix: str = "") -> None:
         for key, bad, allowed in (
                 ("write.scheme", SCHEMES[cfg.write.scheme].out_of_place, "an in-place scheme"),
                 ("cell.bits_per_cell", cfg.cell.bits_per_cell > 1, "1 (pre-programming models SLC)"),
+                ("cell.tri_level", cfg.cell.tri_level, "false (pre-programming models SLC)"),
                 ("leveling.scheme", cfg.leveling.scheme != "none",
                  "none (leveler moves would undo a pre-programmed line)")):
             if bad:
                 value = {"write.scheme": cfg.write.scheme, "cell.bits_per_cell": cfg.cell.bits_per_cell,
+                         "cell.tri_level": cfg.cell.tri_level,
                          "leveling.scheme": cfg.leveling.scheme}[key]
                 raise ConfigError(key, repr(value), f"{allowed} with controller.hint_preset")
     if cfg.cell.technology != "pcm":
@@ -68,7 +70,7 @@ def check_names(cfg: RunConfig, where_prefix: str = "") -> None:
             if bad:
                 raise ConfigError(key, repr(value), f"a PCM-only feature; not with cell.technology "
                                                     f"{cfg.cell.technology}")
-    if SCHEMES[cfg.write.scheme].out_of_place and cfg.cell.bits_per_cell > 1:
+    if SCHEMES[cfg.write.scheme].out_of_place and (cfg.cell.bits_per_cell > 1 or cfg.cell.tri_level):
         raise ConfigError("write.scheme", repr(cfg.write.scheme),
                           "a per-cell scheme with multi-level cells (block_erase models SLC)")
 

@@ -36,8 +36,8 @@ def drift_report(config: str | Path | Mapping | RunConfig | None = None, **overr
     cfg = resolve(config, {**extra, **overrides})
     r = cfg.refresh
     cell, drift = mlc_cell(cfg), drift_params(cfg)
-    n_cells = -(-cfg.array.line_bytes * 8 // cfg.cell.bits_per_cell)
-    n_bits = n_cells * cfg.cell.bits_per_cell
+    n_cells = cell.cells_per_line(cfg.array.line_bytes * 8)
+    n_bits = int(round(n_cells * cell.bits_stored))
     notes: list[str] = []
     # Drift at another temperature needs its activation energy; crystallization
     # has its own, so the retention-limited age can be given either way.
@@ -71,7 +71,7 @@ def drift_report(config: str | Path | Mapping | RunConfig | None = None, **overr
     at_age = float(table.loc[table["age_s"] == ra.age_s, "rber_line"].iloc[0]) if math.isfinite(
         ra.age_s) else float("nan")
     summary = {
-        "bits_per_cell": cfg.cell.bits_per_cell,
+        "bits_per_cell": cell.bits_stored if cell.tri_level else cfg.cell.bits_per_cell,
         "cells_per_line": n_cells,
         "correctable_bits": r.correctable_bits,
         "max_fail_prob": r.max_fail_prob,

@@ -352,8 +352,9 @@ def profile_cells(path: WritePath) -> int:
     """Cells per line: data and flag cells; for multi-level cells, bits / bits per cell."""
     if path.cell_wear is not None:
         return int(path.cell_wear.shape[1])
-    per_cell = path.mlc.cell.bits_per_cell if path.mlc is not None else 1
-    return -(-path.line_bits // per_cell)
+    if path.mlc is not None:
+        return path.mlc.cell.cells_per_line(path.line_bits)
+    return path.line_bits
 
 
 def path_profile(path: WritePath) -> float | np.ndarray:

@@ -93,7 +93,7 @@ def plan_refresh(cfg) -> RefreshPlan:
     """Refresh age and the engine-side plan of a config's refresh policy."""
     r = cfg.refresh
     cell, drift = mlc_cell(cfg), drift_params(cfg)
-    n_cells = -(-cfg.array.line_bytes * 8 // cfg.cell.bits_per_cell)
+    n_cells = cell.cells_per_line(cfg.array.line_bytes * 8)
     ra = refresh_age(cell, drift, n_cells, r.correctable_bits, r.max_fail_prob, r.temperature_k,
                      method=r.fail_model)
     ages = np.logspace(-3, math.log10(drift.drift_t_max_s), 121)
@@ -109,5 +109,5 @@ def plan_refresh(cfg) -> RefreshPlan:
     threshold = interval * NS_PER_S / scale if math.isfinite(interval) else math.inf
     scan = threshold * r.scan_fraction if math.isfinite(threshold) else math.inf
     return RefreshPlan(r.policy, ra.age_s, ra.status, interval, scale, threshold, scan,
-                       n_cells * cfg.cell.bits_per_cell, r.scrub_errors, r.start, np.log10(ages),
+                       int(round(n_cells * cell.bits_stored)), r.scrub_errors, r.start, np.log10(ages),
                        tab["rber_line"].to_numpy(), tab["p_uncorrectable"].to_numpy())

@@ -57,7 +57,7 @@ import pandas as pd
 from scipy import constants, integrate, optimize, special, stats
 
 from memsim.errors import ConfigError
-from memsim.tech.mlc import MlcCell, bit_distance_matrix, level_to_bits
+from memsim.tech.mlc import TRI_PAIR_WORD, TRI_WORD_LEVELS, MlcCell, level_to_bits
 from memsim.tech.retention import Retention
 
 K_B_EV_PER_K: float = constants.physical_constants["Boltzmann constant in eV/K"][0]
@@ -386,12 +386,14 @@ def _bit_error_parts(
 
 
 def _rber_by_level(cell: MlcCell, P: np.ndarray) -> np.ndarray:
-    D = bit_distance_matrix(cell.bits_per_cell)
-    return np.einsum("alj,lj->al", P, D) / cell.bits_per_cell
+    return np.einsum("alj,lj->al", P, cell.bit_distance()) / cell.bits_stored
 
 
 def _cell_pmf(cell: MlcCell, P: np.ndarray, w: np.ndarray) -> np.ndarray:
-    D = bit_distance_matrix(cell.bits_per_cell)
+    if cell.tri_level:
+        raise ConfigError("refresh.fail_model", "'exact' with tri-level cells",
+                          "binomial (the exact per-cell pmf needs whole bits per cell)")
+    D = cell.bit_distance().astype(np.int64)
     q = np.zeros((P.shape[0], cell.bits_per_cell + 1))
     for nbits in range(1, cell.bits_per_cell + 1):
         q[:, nbits] = np.einsum("alj,lj,l->a", P, D == nbits, w)
@@ -450,11 +452,18 @@ def rber_mc(
     standard error (over cells)."""
     _check_pair(cell, drift)
     x, _ = drift_decades(ages_s, drift, temp_k)
-    w = cell.level_probs(level_probs)
-    lv = rng.choice(cell.n_levels, size=n_cells, p=w)
+    if cell.tri_level:
+        if level_probs is not None:
+            raise ValueError("tri-level Monte Carlo draws random words; level_probs must be None")
+        words = rng.integers(0, 8, size=n_cells // 2)
+        lv = TRI_WORD_LEVELS[words].reshape(-1)
+        n_cells = lv.size
+    else:
+        w = cell.level_probs(level_probs)
+        lv = rng.choice(cell.n_levels, size=n_cells, p=w)
     r0, unconv = cell.sample_written_log10_r(lv, rng)
     nu = np.asarray(drift.drift_nu)[lv] + np.asarray(drift.drift_nu_sd)[lv] * rng.standard_normal(n_cells)
-    stored = level_to_bits(lv, cell.bits_per_cell)
+    stored = None if cell.tri_level else level_to_bits(lv, cell.bits_per_cell)
     est, se = np.empty(x.size), np.empty(x.size)
     cryst = crystallized_prob(drift, ages_s, temp_k)
     for a, xa in enumerate(x):
@@ -462,9 +471,14 @@ def rber_mc(
         read = np.where(unconv, read, np.maximum(read, lv))  # converged cells: only upward misreads are drift
         if drift.retention is not None:
             read = np.where((lv > 0) & (rng.random(n_cells) < cryst[a]), 0, read)
-        flips = (level_to_bits(read, cell.bits_per_cell) != stored).sum(axis=1) / cell.bits_per_cell
+        if cell.tri_level:
+            pair = read.reshape(-1, 2)
+            diff = TRI_PAIR_WORD[pair[:, 0], pair[:, 1]] ^ words
+            flips = ((diff & 1) + ((diff >> 1) & 1) + ((diff >> 2) & 1)) / 3.0
+        else:
+            flips = (level_to_bits(read, cell.bits_per_cell) != stored).sum(axis=1) / cell.bits_per_cell
         est[a] = flips.mean()
-        se[a] = flips.std(ddof=1) / math.sqrt(n_cells)
+        se[a] = flips.std(ddof=1) / math.sqrt(flips.size)
     return est, se
 
 
@@ -542,7 +556,7 @@ def _p_fail(cell: MlcCell, P: np.ndarray, w: np.ndarray, rber: np.ndarray, n_cel
             correctable_bits: int, method: str) -> np.ndarray:
     """P(more than ``correctable_bits`` errors in the line), by ``method``."""
     if method == "binomial":
-        return p_line_fail_binomial(rber, n_cells * cell.bits_per_cell, correctable_bits)
+        return p_line_fail_binomial(rber, int(round(n_cells * cell.bits_stored)), correctable_bits)
     return p_line_fail_exact(_cell_pmf(cell, P, w), n_cells, correctable_bits)
 
 

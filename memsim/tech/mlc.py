@@ -95,6 +95,36 @@ def bit_distance_matrix(bits_per_cell: int) -> np.ndarray:
     return d
 
 
+# ------------------------------------------------------- tri-level pairs
+# Two tri-level cells store one 3-bit word (8 of the 3 x 3 level pairs).  The
+# word of each (level of cell A, level of cell B): every pair of used
+# neighbours (one cell one level apart) differs in one bit.  The middle-middle
+# pair is unused; a read that lands there decodes as word 0.
+TRI_PAIR_WORD = np.array([[0, 1, 3],
+                          [2, 0, 7],
+                          [6, 4, 5]], dtype=np.int64)
+TRI_PAIR_USED = np.array([[True, True, True], [True, False, True], [True, True, True]])
+TRI_WORD_LEVELS = np.array([[0, 0], [0, 1], [1, 0], [0, 2], [2, 1], [2, 2], [2, 0], [1, 2]], dtype=np.int64)
+
+
+def tri_distance_matrix() -> np.ndarray:
+    """``D[i, j]``: expected bits flipped when one cell of a tri-level pair at
+    level i reads as level j, averaged over both cells of the pair and the
+    eight words (uniformly random data)."""
+    d = np.zeros((3, 3))
+    count = np.zeros(3)
+    for w, (a, b) in enumerate(TRI_WORD_LEVELS):
+        for pos in (0, 1):
+            lv = (a, b)[pos]
+            count[lv] += 1
+            for j in range(3):
+                pair = [a, b]
+                pair[pos] = j
+                read = TRI_PAIR_WORD[pair[0], pair[1]]
+                d[lv, j] += bin(int(w) ^ int(read)).count("1")
+    return d / count[:, None]
+
+
 # ----------------------------------------------------------------- the cell
 def _per_level(name: str, value: float | Sequence[float], n: int) -> tuple[float, ...]:
     if np.ndim(value) == 0:
@@ -107,7 +137,8 @@ def _per_level(name: str, value: float | Sequence[float], n: int) -> tuple[float
 
 @dataclass(frozen=True)
 class MlcCell:
-    """One PCM cell storing 1, 2 or 3 bits.  Per-level fields accept one number
+    """One PCM cell storing 1, 2 or 3 bits, or a tri-level cell (three levels,
+    two cells per 3-bit word; ``bits_per_cell`` is then not used).  Per-level fields accept one number
     (same for every level) or one value per level, lowest resistance first.
 
     Attributes
@@ -147,12 +178,13 @@ class MlcCell:
     verify_band_sigma: float | None = None
     pv_model: str = "geometric"
     pv_max_iterations: int = 16
+    tri_level: bool = False
 
     def __post_init__(self) -> None:
         b = self.bits_per_cell
         if isinstance(b, bool) or not isinstance(b, (int, np.integer)) or b not in (1, 2, 3):
             raise ConfigError("cell.bits_per_cell", repr(b), "1, 2 or 3")
-        n = 1 << int(b)
+        n = 3 if self.tri_level else 1 << int(b)
         lv = _per_level("level_log10_ohm", self.level_log10_ohm, n)
         if np.ndim(self.level_log10_ohm) == 0 or np.any(np.diff(lv) <= 0):
             raise ConfigError(
@@ -223,7 +255,22 @@ class MlcCell:
     # -- geometry ------------------------------------------------------------
     @property
     def n_levels(self) -> int:
-        return 1 << self.bits_per_cell
+        return 3 if self.tri_level else 1 << self.bits_per_cell
+
+    @property
+    def bits_stored(self) -> float:
+        """Data bits per cell (1.5 for tri-level pairs)."""
+        return 1.5 if self.tri_level else float(self.bits_per_cell)
+
+    def bit_distance(self) -> np.ndarray:
+        """Bits flipped when a cell of level i reads as level j (expected, for tri-level pairs)."""
+        return tri_distance_matrix() if self.tri_level else bit_distance_matrix(self.bits_per_cell).astype(float)
+
+    def cells_per_line(self, line_bits: int) -> int:
+        """Cells holding ``line_bits`` data bits (the last cell or pair may be partly used)."""
+        if self.tri_level:
+            return 2 * -(-int(line_bits) // 3)
+        return -(-int(line_bits) // self.bits_per_cell)
 
     @property
     def level_mu(self) -> np.ndarray:
@@ -247,6 +294,9 @@ class MlcCell:
         """Validated level occupancy; ``None`` = uniform (random data)."""
         n = self.n_levels
         if level_probs is None:
+            if self.tri_level:
+                # Random words: each cell of a pair sits at levels 0, 1, 2 in 3, 2, 3 of 8 words.
+                return np.array([3.0, 2.0, 3.0]) / 8.0
             return np.full(n, 1.0 / n)
         w = np.asarray(level_probs, dtype=np.float64)
         if w.shape != (n,) or np.any(w < 0) or not np.isclose(w.sum(), 1.0):

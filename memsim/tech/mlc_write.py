@@ -30,7 +30,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from memsim.tech.mlc import MlcCell, gray_decode
+from memsim.tech.mlc import TRI_WORD_LEVELS, MlcCell, gray_decode
 
 
 @dataclass
@@ -42,6 +42,18 @@ class MlcCost:
     unconverged: np.ndarray    # programmed cells per line left outside their verify band
     iterations: np.ndarray     # lock-step iterations per line
     charge_ua_ns: np.ndarray   # programming current integrated over the write, uA ns
+
+
+def tri_levels(lines: np.ndarray) -> np.ndarray:
+    """Levels ``(n, 2 * words)`` of packed lines stored in tri-level pairs,
+    3 bits per pair (the last word is zero-padded)."""
+    bits = np.unpackbits(lines, axis=1).astype(np.int64)
+    n, nb = bits.shape
+    pad = -nb % 3
+    if pad:
+        bits = np.concatenate([bits, np.zeros((n, pad), np.int64)], axis=1)
+    words = bits.reshape(n, -1, 3) @ np.array([4, 2, 1])
+    return TRI_WORD_LEVELS[words].reshape(n, -1)
 
 
 def cell_levels(lines: np.ndarray, bits_per_cell: int) -> np.ndarray:
@@ -109,6 +121,8 @@ class MlcProgrammer:
         return MlcCost(program, energy, iters.sum(axis=1), cells, unconverged, n_iter, charge)
 
     def levels(self, lines: np.ndarray) -> np.ndarray:
+        if self.cell.tri_level:
+            return tri_levels(lines)
         return cell_levels(lines, self.cell.bits_per_cell)
 
     def summary(self) -> dict[str, float | None]:

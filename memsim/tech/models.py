@@ -7,6 +7,11 @@ from memsim.tech.retention import Retention
 from memsim.tech.technology import technology
 
 
+def levels(cfg) -> int:
+    """Resistance levels per cell of a config."""
+    return 3 if cfg.cell.tri_level else 1 << cfg.cell.bits_per_cell
+
+
 def mlc_cell(cfg) -> MlcCell:
     """The program-and-verify cell of a config.
 
@@ -15,11 +20,12 @@ def mlc_cell(cfg) -> MlcCell:
     pulse; one verify is one array read.
     """
     c = cfg.cell
-    n = 1 << c.bits_per_cell
+    n = levels(cfg)
     pulse_ns = c.pulse_ns if c.pulse_ns is not None else [c.set_ns] + [c.reset_ns] * (n - 1)
     pulse_pj = c.pulse_pj if c.pulse_pj is not None else [c.set_pj] + [c.reset_pj] * (n - 1)
     return MlcCell.from_dict({
         "bits_per_cell": c.bits_per_cell,
+        "tri_level": c.tri_level,
         "level_log10_ohm": c.level_log10_ohm,
         "read_thresholds_log10_ohm": c.read_thresholds_log10_ohm,
         "program_sigma_decades": c.program_sigma_decades,
@@ -45,9 +51,9 @@ def retention(cfg) -> Retention | None:
 
 def drift_params(cfg) -> DriftParams:
     c = cfg.cell
-    n = 1 << c.bits_per_cell
+    n = levels(cfg)
     return DriftParams.from_dict({
         "drift_nu": c.drift_nu if technology(cfg).drifts else [0.0] * n, "drift_nu_rel_sd": c.drift_nu_rel_sd, "drift_t0_s": c.drift_t0_s,
         "drift_t_max_s": c.drift_t_max_s, "drift_activation_ev": c.drift_activation_ev,
         "drift_reference_k": c.drift_reference_k, "retention": retention(cfg),
-    }, 1 << c.bits_per_cell)
+    }, n)

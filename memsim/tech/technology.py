@@ -98,5 +98,5 @@ def technology(cfg) -> Technology:
 
 
 def uses_verify(cfg) -> bool:
-    """Writes go through program-and-verify: multi-level cells, or a technology that verifies."""
-    return cfg.cell.bits_per_cell > 1 or technology(cfg).verify_writes
+    """Writes go through program-and-verify: multi-level or tri-level cells, or a technology that verifies."""
+    return cfg.cell.bits_per_cell > 1 or cfg.cell.tri_level or technology(cfg).verify_writes
