@@ -138,7 +138,7 @@ def test_tri_level_pair_code() -> None:
             for da, db in ((1, 0), (0, 1)):
                 a2, b2 = a + da, b + db
                 if a2 < 3 and b2 < 3 and TRI_PAIR_USED[a, b] and TRI_PAIR_USED[a2, b2]:
-                    assert bin(int(TRI_PAIR_WORD[a, b] ^ TRI_PAIR_WORD[a2, b2])).count("1") == 1
+                    assert int(TRI_PAIR_WORD[a, b] ^ TRI_PAIR_WORD[a2, b2]).bit_count() == 1
 
 
 def test_tri_levels_round_trip_and_occupancy() -> None:

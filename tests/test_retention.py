@@ -64,7 +64,7 @@ def test_crystallization_rber_agrees_with_monte_carlo(ret) -> None:
     cell, drift = slc(ret)
     ages = np.array([1e8, 3e8])
     n = 200_000
-    est, se = rber_mc(cell, drift, ages, n, np.random.default_rng(5), temp_k=358.15)
+    est, _ = rber_mc(cell, drift, ages, n, np.random.default_rng(5), temp_k=358.15)
     ref = line_rber(cell, drift, ages, temp_k=358.15)
     assert np.all(ref > 1e-4)
     assert np.all(np.abs(est - ref) <= 4 * np.sqrt(ref * (1 - ref) / n))

@@ -85,6 +85,14 @@ def test_compare_across_technologies(tmp_path) -> None:
     out = subprocess.run([sys.executable, "-m", "memsim.cli", "compare", str(ROOT / "workloads" / "demo.toml"),
                           "--vary", "cell.preset=pcm_slc,reram_slc,stt_mram", "--set", "workload.requests=3000",
                           "--workers", "1", "--quiet", "--out", str(tmp_path / "c")],
-                         capture_output=True, text=True)
+                         capture_output=True, text=True, check=False)
     assert out.returncode == 0, out.stderr
     assert "reram_slc" in out.stdout and "stt_mram" in out.stdout
+
+
+def test_stt_run_reports_its_write_error_rates() -> None:
+    c = cfg("stt_mram", workload={"requests": 500})
+    s = simulate(c).summary
+    want = stt_write_error_rate([20.0, 20.0], [97.0, 98.0], 45.0, 100.0, 1.0)
+    assert [s["write_error_rate_set_side"], s["write_error_rate_reset_side"]] == pytest.approx(list(want), rel=1e-12)
+    assert "write_error_rate_set_side" not in simulate(cfg("pcm_slc", workload={"requests": 500})).summary

@@ -14,8 +14,14 @@ from scipy import integrate
 from memsim.config import load_config
 from memsim.errors import ConfigError
 from memsim.experiment.cell import cell_model, load_spec, parse_spec, save_cell
-from memsim.tech.crystallization import (K_B_EV_PER_K, YEAR_S, ZERO_C_K, Kinetics, avrami_fraction,
-                                         avrami_reduced_time)
+from memsim.tech.crystallization import (
+    K_B_EV_PER_K,
+    YEAR_S,
+    ZERO_C_K,
+    Kinetics,
+    avrami_fraction,
+    avrami_reduced_time,
+)
 from memsim.tech.materials import GST225
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -223,12 +229,12 @@ def test_bad_spec_names_the_key(tmp_path) -> None:
 
 def test_cli_cell(tmp_path) -> None:
     out = subprocess.run([sys.executable, "-m", "memsim.cli", "cell", str(DEMO), "--out", str(tmp_path / "c")],
-                         capture_output=True, text=True)
+                         capture_output=True, text=True, check=False)
     assert out.returncode == 0, out.stderr
     assert "silicon characterisation" in out.stdout
     assert (tmp_path / "c" / "demo_pillar_preset.toml").is_file()
     bad = tmp_path / "bad.toml"
     bad.write_text("name = 'x'\nmaterial = 'gst225'\n[geometry]\nactive_volume_nm3 = 'big'\n")
-    out = subprocess.run([sys.executable, "-m", "memsim.cli", "cell", str(bad)], capture_output=True, text=True)
+    out = subprocess.run([sys.executable, "-m", "memsim.cli", "cell", str(bad)], capture_output=True, text=True, check=False)
     assert out.returncode == 2 and "geometry.active_volume_nm3" in out.stderr
     assert "Traceback" not in out.stderr and len(out.stderr.strip().splitlines()) == 1

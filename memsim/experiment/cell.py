@@ -215,7 +215,8 @@ def cell_model(spec: str | Path | dict | CellSpec) -> RunResult:
     phys = spec.physics()
     derived = phys.derive()
     kin = phys.kinetics
-    derived["kinetics_ramp_cryst_c"] = kin.ramp_crystallization_k(10.0 / 60.0) - ZERO_C_K
+    # What the kinetics imply for a 10 K/min heating ramp, to set beside the handbook cryst_c.
+    derived["cryst_c_implied_at_10k_per_min"] = kin.ramp_crystallization_k(10.0 / 60.0) - ZERO_C_K
     summary: dict[str, Any] = {"cell": spec.name, **derived, "caution": CAUTION}
     capping, size = _sweep_rows(spec)
     sources = pd.DataFrame([{"input": k, "value": spec.values[k], "source": spec.sources[k]}
@@ -251,12 +252,12 @@ def preset_toml(spec: CellSpec, d: dict[str, Any]) -> str:
     lines += ["", "[cell]"]
     vals = [
         ("read_ns", spec.values["read.read_ns"], src("read.read_ns")),
-        ("set_ns", d["set_ns"], f"{law}: time to {spec.values['program.set_fraction']:g} crystallized at "
-                                f"{d['set_temperature_c']:.0f} C (JMAK + Arrhenius), driver floor "
-                                f"{spec.values['access.min_pulse_ns']:g} ns"),
-        ("reset_ns", d["reset_ns"], f"{law}: heat to melting + latent heat "
-                                    f"({d['reset_pulse_needed_ns']:.3g} ns), driver floor "
-                                    f"{spec.values['access.min_pulse_ns']:g} ns"),
+        ("set_ns", d["set_ns"], (f"{law}: time to {spec.values['program.set_fraction']:g} crystallized at "
+                                 f"{d['set_temperature_c']:.0f} C (JMAK + Arrhenius), driver floor "
+                                 f"{spec.values['access.min_pulse_ns']:g} ns")),
+        ("reset_ns", d["reset_ns"], (f"{law}: heat to melting + latent heat "
+                                     f"({d['reset_pulse_needed_ns']:.3g} ns), driver floor "
+                                     f"{spec.values['access.min_pulse_ns']:g} ns")),
         ("read_ua", spec.values["read.read_ua"], src("read.read_ua")),
         ("set_ua", d["set_current_ua"], f"{law}: sqrt(P_set / R_on)"),
         ("reset_ua", d["reset_current_ua"], f"{law}: sqrt(overdrive x P_melt / R_on)"),

@@ -37,7 +37,7 @@ def drift_report(config: str | Path | Mapping | RunConfig | None = None, **overr
     r = cfg.refresh
     cell, drift = mlc_cell(cfg), drift_params(cfg)
     n_cells = cell.cells_per_line(cfg.array.line_bytes * 8)
-    n_bits = int(round(n_cells * cell.bits_stored))
+    n_bits = round(n_cells * cell.bits_stored)
     notes: list[str] = []
     # Drift at another temperature needs its activation energy; crystallization
     # has its own, so the retention-limited age can be given either way.

@@ -17,6 +17,7 @@ from memsim.experiment.lifetime import lifetime_fields
 from memsim.metrics.result import RunResult, latency_histogram, latency_stats
 from memsim.policy.refresh import plan_refresh
 from memsim.policy.writepath import WritePath
+from memsim.tech.technology import summary_fields as technology_summary
 
 
 def resolve(config: str | Path | Mapping | RunConfig | None, overrides: Mapping[str, Any] | None = None,
@@ -98,6 +99,7 @@ def summarize(cfg: RunConfig, tot: TimingTotals, path: WritePath) -> dict[str, A
     })
     if path.mlc is not None:
         s.update(path.mlc.summary())
+    s.update(technology_summary(cfg))
     s.update(lifetime_fields(cfg, path, tot.writes * line_bytes / sim * 1e9 if sim > 0 else 0.0))
     return s
 

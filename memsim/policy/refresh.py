@@ -109,5 +109,5 @@ def plan_refresh(cfg) -> RefreshPlan:
     threshold = interval * NS_PER_S / scale if math.isfinite(interval) else math.inf
     scan = threshold * r.scan_fraction if math.isfinite(threshold) else math.inf
     return RefreshPlan(r.policy, ra.age_s, ra.status, interval, scale, threshold, scan,
-                       int(round(n_cells * cell.bits_stored)), r.scrub_errors, r.start, np.log10(ages),
+                       round(n_cells * cell.bits_stored), r.scrub_errors, r.start, np.log10(ages),
                        tab["rber_line"].to_numpy(), tab["p_uncorrectable"].to_numpy())

@@ -556,7 +556,7 @@ def _p_fail(cell: MlcCell, P: np.ndarray, w: np.ndarray, rber: np.ndarray, n_cel
             correctable_bits: int, method: str) -> np.ndarray:
     """P(more than ``correctable_bits`` errors in the line), by ``method``."""
     if method == "binomial":
-        return p_line_fail_binomial(rber, int(round(n_cells * cell.bits_stored)), correctable_bits)
+        return p_line_fail_binomial(rber, round(n_cells * cell.bits_stored), correctable_bits)
     return p_line_fail_exact(_cell_pmf(cell, P, w), n_cells, correctable_bits)
 
 

@@ -121,7 +121,7 @@ def tri_distance_matrix() -> np.ndarray:
                 pair = [a, b]
                 pair[pos] = j
                 read = TRI_PAIR_WORD[pair[0], pair[1]]
-                d[lv, j] += bin(int(w) ^ int(read)).count("1")
+                d[lv, j] += (int(w) ^ int(read)).bit_count()
     return d / count[:, None]
 
 

@@ -87,7 +87,7 @@ class MlcProgrammer:
     def cost(self, old: np.ndarray, new: np.ndarray, full: bool = False) -> MlcCost:
         c = self.cell
         lv_new = self.levels(new)
-        n, ncells = lv_new.shape
+        n = lv_new.shape[0]
         prog = np.ones_like(lv_new, dtype=bool) if full else (self.levels(old) != lv_new)
         iters = np.zeros(lv_new.shape, dtype=np.int64)
         unconv = np.zeros(lv_new.shape, dtype=bool)

@@ -97,6 +97,15 @@ def technology(cfg) -> Technology:
     return TECHNOLOGIES[cfg.cell.technology]
 
 
+def summary_fields(cfg) -> dict[str, float]:
+    """Technology keys of a run summary: the STT-MRAM write error rate per attempt."""
+    tech = technology(cfg)
+    if isinstance(tech, SttMram):
+        wer = tech.write_error_rates(cfg)
+        return {"write_error_rate_set_side": wer[0], "write_error_rate_reset_side": wer[1]}
+    return {}
+
+
 def uses_verify(cfg) -> bool:
     """Writes go through program-and-verify: multi-level or tri-level cells, or a technology that verifies."""
     return cfg.cell.bits_per_cell > 1 or cfg.cell.tri_level or technology(cfg).verify_writes
