@@ -279,5 +279,7 @@ def save_cell(result: RunResult, folder: str | Path) -> list[Path]:
     name = result.summary["cell"]
     preset = folder / f"{name}_preset.toml"
     atomic_write_text(preset, result.config["preset_toml"])
-    return [preset, plot_capping(result.tables["capping_sweep"], folder / "cell_capping.png"),
+    spec = result.config["spec"]
+    return [preset, plot_capping(result.tables["capping_sweep"], folder / "cell_capping.png",
+                                 spec["capping.conductivity_w_mk"], spec["access.current_limit_ua"]),
             plot_scaling(result.tables["size_sweep"], folder / "cell_scaling.png")]

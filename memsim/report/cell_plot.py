@@ -29,9 +29,11 @@ def _save(fig: Figure, path: str | os.PathLike[str]) -> Path:
     return out
 
 
-def capping_figure(table: pd.DataFrame) -> Figure:
-    """RESET energy and power (left) and quench time against the critical
-    crystallization time (right) against capping-layer conductivity."""
+def capping_figure(table: pd.DataFrame, spec_conductivity: float | None = None,
+                   current_limit_ua: float | None = None) -> Figure:
+    """RESET energy and current (left) and quench time against the critical
+    crystallization time (right) against capping-layer conductivity; the
+    spec's own conductivity and the access device's current limit are marked."""
     k = table["capping_conductivity_w_mk"].to_numpy(float)
     fig = Figure(figsize=(10.0, 4.2))
     ax1, ax2 = fig.subplots(1, 2)
@@ -44,6 +46,15 @@ def capping_figure(table: pd.DataFrame) -> Figure:
     tw.plot(k, table["reset_current_ua"], "s--", color="tab:blue", ms=3, label="RESET current (uA)")
     tw.set_yscale("log")
     tw.set_ylabel("RESET current (uA)", color="tab:blue")
+    if current_limit_ua is not None:
+        tw.axhline(current_limit_ua, color="tab:blue", ls=":", lw=1.2)
+        tw.annotate("access device limit", (k[0], current_limit_ua), textcoords="offset points",
+                    xytext=(2, 3), fontsize="small", color="tab:blue")
+    if spec_conductivity is not None:
+        for ax in (ax1, ax2):
+            ax.axvline(spec_conductivity, color="grey", ls="-.", lw=1.0)
+        ax1.annotate("this cell", (spec_conductivity, ax1.get_ylim()[0]), textcoords="offset points",
+                     xytext=(3, 5), fontsize="small", color="grey")
     ax1.set_title("RESET cost: less conductive capping keeps heat in")
     ax1.grid(True, which="both", alpha=0.3)
 
@@ -86,8 +97,9 @@ def scaling_figure(table: pd.DataFrame) -> Figure:
     return fig
 
 
-def plot_capping(table: pd.DataFrame, path: str | os.PathLike[str]) -> Path:
-    return _save(capping_figure(table), path)
+def plot_capping(table: pd.DataFrame, path: str | os.PathLike[str], spec_conductivity: float | None = None,
+                 current_limit_ua: float | None = None) -> Path:
+    return _save(capping_figure(table, spec_conductivity, current_limit_ua), path)
 
 
 def plot_scaling(table: pd.DataFrame, path: str | os.PathLike[str]) -> Path:
