@@ -16,10 +16,14 @@ _LAZY = {
     "compare": ("memsim.experiment.compare", "compare"),
     "drift_report": ("memsim.experiment.drift", "drift_report"),
     "point_stats": ("memsim.experiment.sweep", "point_stats"),
+    "make_trace": ("memsim.experiment.tools", "make_trace"),
+    "trace_summary": ("memsim.experiment.tools", "trace_summary"),
+    "available": ("memsim.experiment.tools", "available"),
+    "plot_sweep": ("memsim.report.page", "plot_sweep"),
 }
 
-__all__ = ["RunConfig", "RunResult", "__version__", "compare", "drift_report", "lifetime",
-           "load_config", "point_stats", "simulate", "sweep"]
+__all__ = ["RunConfig", "RunResult", "__version__", "available", "compare", "drift_report", "lifetime",
+           "load_config", "make_trace", "plot_sweep", "point_stats", "simulate", "sweep", "trace_summary"]
 
 
 def __getattr__(name: str):

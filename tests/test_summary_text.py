@@ -27,7 +27,7 @@ def test_values_keep_four_significant_digits(value, text):
 
 def test_units_come_from_the_key_suffix():
     assert unit_of("read_latency_p99_ns") == "ns"
-    assert unit_of("cells_per_ns") == "/ns"
+    assert unit_of("cells_per_ns") == "1/ns"
     assert unit_of("energy_per_bit_pj") == "pJ"
     assert unit_of("throughput_gbps") == "GB/s"
     assert unit_of("lifetime_years") == "years"

@@ -29,15 +29,14 @@ def run(config: str, sets: tuple[str, ...], out: str | None, full: bool) -> None
 @click.command(name="list")
 def list_parts() -> None:
     """List write schemes, wear levelers, refresh policies and technology presets."""
-    from memsim.config import preset_names
-    from memsim.policy.leveling import leveler_names
-    from memsim.policy.refresh import POLICIES
-    from memsim.policy.write import scheme_names
+    from memsim.experiment.tools import available
 
-    click.echo("write schemes:    " + ", ".join(scheme_names()))
-    click.echo("wear levelers:    " + ", ".join(leveler_names()))
-    click.echo("refresh policies: " + ", ".join(POLICIES))
-    click.echo("presets:          " + ", ".join(preset_names()))
+    parts = available()
+    labels = {"write_schemes": "write schemes", "wear_levelers": "wear levelers",
+              "refresh_policies": "refresh policies", "presets": "presets"}
+    width = max(len(v) for v in labels.values()) + 1
+    for key, names in parts.items():
+        click.echo(f"{labels.get(key, key) + ':':<{width}} " + ", ".join(names))
 
 
 COMMANDS = [run, list_parts]

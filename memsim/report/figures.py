@@ -31,23 +31,14 @@ from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
 
 from memsim.errors import UserError
 from memsim.metrics.result import atomic_write_bytes
+from memsim.units import split_unit
 
-UNITS = {"ns": "ns", "pj": "pJ", "gbps": "GB/s", "years": "years", "per_s": "1/s", "s": "s",
-         "ua": "uA", "bytes": "bytes", "writes": "writes", "lines": "lines"}
 # Shown first when a sweep kept every summary key.
 PREFERRED = ("throughput_gbps", "read_latency_p99_ns", "write_latency_p99_ns", "energy_per_bit_pj",
              "lifetime_years")
 MAX_LINES = 8
 MAX_GROUPS = 12
 FORMATS = ("png", "svg")
-
-
-def split_unit(name: str) -> tuple[str, str | None]:
-    """``read_latency_p99_ns`` -> (``read_latency_p99``, ``ns``); no unit -> (name, None)."""
-    for suffix in sorted(UNITS, key=len, reverse=True):
-        if name.endswith("_" + suffix):
-            return name[: -len(suffix) - 1], UNITS[suffix]
-    return name, None
 
 
 def axis_label(name: str) -> str:

@@ -15,11 +15,7 @@ from collections.abc import Callable, Mapping
 from dataclasses import dataclass
 from typing import Any
 
-# Unit shown beside a value, from the key's suffix (the unit is in every
-# metric name; this only spells it for a reader).
-_UNITS = [("_per_ns", "/ns"), ("_ns", "ns"), ("_pj", "pJ"), ("_gbps", "GB/s"), ("_per_s", "/s"), ("_years", "years"),
-          ("_s", "s"), ("_ua", "uA")]
-
+from memsim.units import split_unit
 
 @dataclass(frozen=True)
 class _Section:
@@ -118,10 +114,8 @@ def fmt_value(v: Any) -> str:
 
 
 def unit_of(key: str) -> str:
-    for suffix, unit in _UNITS:
-        if key.endswith(suffix):
-            return unit
-    return ""
+    """The unit a reader sees beside ``key``'s value (from the key's suffix)."""
+    return split_unit(key)[1] or ""
 
 
 def grouped(summary: Mapping[str, Any], config: Mapping | None = None,
