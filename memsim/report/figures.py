@@ -182,13 +182,13 @@ def _outside_legend(ax, **kw: Any) -> None:
     ax.legend(loc="upper left", bbox_to_anchor=(1.02, 1.0), borderaxespad=0.0, fontsize="small", **kw)
 
 
-def _wide(values: np.ndarray) -> bool:
+def wide_range(values: np.ndarray) -> bool:
     """Positive values over more than two decades read best on a log axis."""
     v = values[np.isfinite(values)]
     return bool(v.size and (v > 0).all() and v.max() > 100 * v.min())
 
 
-def _clipped_interval(mean: np.ndarray, lo: np.ndarray, hi: np.ndarray, log: bool,
+def clipped_interval(mean: np.ndarray, lo: np.ndarray, hi: np.ndarray, log: bool,
                       nonneg: bool) -> tuple[np.ndarray, np.ndarray, bool]:
     """Interval ends kept inside what the metric and the axis can show.
 
@@ -224,7 +224,7 @@ def line_figure(stats: pd.DataFrame, metric: str, x: str, others: Sequence[str],
     FigureCanvasAgg(fig)
     ax = fig.add_subplot()
     means_all = st["mean"].to_numpy(float)
-    log_y = _wide(means_all)
+    log_y = wide_range(means_all)
     nonneg = bool(np.nanmin(means_all) >= 0) if np.isfinite(means_all).any() else False
     groups = list(st.groupby(hue, sort=False)) if hue else [((), st)]
     combos = [v if isinstance(v, tuple) else (v,) for v, _ in groups]
@@ -234,7 +234,7 @@ def line_figure(stats: pd.DataFrame, metric: str, x: str, others: Sequence[str],
         xs = g[x].to_numpy(float)
         mean = g["mean"].to_numpy(float)
         ax.plot(xs, mean, label=_combo_label(hue, values), **style)
-        lo, hi, cut = _clipped_interval(mean, g["ci_low"].to_numpy(float), g["ci_high"].to_numpy(float),
+        lo, hi, cut = clipped_interval(mean, g["ci_low"].to_numpy(float), g["ci_high"].to_numpy(float),
                                         log_y, nonneg)
         any_cut |= cut
         if np.isfinite(lo).any():
@@ -264,7 +264,7 @@ def _scale_axes(ax, xs: np.ndarray, ys: np.ndarray) -> None:
         if ticks.size <= 12:
             ax.set_xticks(ticks, [f"{v:g}" for v in ticks])
             ax.xaxis.set_minor_formatter(NullFormatter())
-    if _wide(ys):
+    if wide_range(ys):
         ax.set_yscale("log")
     elif ys.size and (ys >= 0).all():
         # A wide interval of a positive quantity may reach below zero; the axis need not.
@@ -300,7 +300,7 @@ def bar_figure(stats: pd.DataFrame, metric: str, key: str, others: Sequence[str]
     FigureCanvasAgg(fig)
     axes = fig.subplots(nrows, ncols, sharey=True, squeeze=False).ravel()
     means_all = st["mean"].to_numpy(float)
-    log_y = _wide(means_all)
+    log_y = wide_range(means_all)
     nonneg = bool(np.nanmin(means_all) >= 0) if np.isfinite(means_all).any() else False
     width = 0.8 / len(bars)
     any_cut = False
@@ -311,7 +311,7 @@ def bar_figure(stats: pd.DataFrame, metric: str, key: str, others: Sequence[str]
             mean = np.array([float(r["mean"].iloc[0]) if len(r) else np.nan for r in rows])
             lo = np.array([float(r["ci_low"].iloc[0]) if len(r) else np.nan for r in rows])
             hi = np.array([float(r["ci_high"].iloc[0]) if len(r) else np.nan for r in rows])
-            lo, hi, cut = _clipped_interval(mean, lo, hi, log_y, nonneg)
+            lo, hi, cut = clipped_interval(mean, lo, hi, log_y, nonneg)
             any_cut |= cut
             err = np.vstack([np.where(np.isfinite(lo), mean - lo, 0.0), np.where(np.isfinite(hi), hi - mean, 0.0)])
             pos = np.arange(len(inner)) + (j - (len(bars) - 1) / 2) * width
