@@ -17,10 +17,15 @@ _LAZY = {
     "drift_report": ("memsim.experiment.drift", "drift_report"),
     "point_stats": ("memsim.experiment.sweep", "point_stats"),
     "cell_model": ("memsim.experiment.cell", "cell_model"),
+    "make_trace": ("memsim.experiment.tools", "make_trace"),
+    "trace_summary": ("memsim.experiment.tools", "trace_summary"),
+    "available": ("memsim.experiment.tools", "available"),
+    "plot_sweep": ("memsim.report.page", "plot_sweep"),
 }
 
-__all__ = ["RunConfig", "RunResult", "__version__", "cell_model", "compare", "drift_report", "lifetime",
-           "load_config", "point_stats", "simulate", "sweep"]
+__all__ = ["RunConfig", "RunResult", "__version__", "available", "cell_model", "compare", "drift_report",
+           "lifetime", "load_config", "make_trace", "plot_sweep", "point_stats", "simulate", "sweep",
+           "trace_summary"]
 
 
 def __getattr__(name: str):

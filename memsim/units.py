@@ -24,3 +24,16 @@ def ns_to_years(ns: float) -> float:
 
 def years_to_ns(years: float) -> float:
     return years * S_PER_YEAR * NS_PER_S
+
+
+# Unit suffixes of metric names and how a reader sees them.
+NAME_UNITS = {"ns": "ns", "pj": "pJ", "gbps": "GB/s", "years": "years", "per_s": "1/s", "per_ns": "1/ns",
+              "s": "s", "ua": "uA", "bytes": "bytes", "writes": "writes", "lines": "lines"}
+
+
+def split_unit(name: str) -> tuple[str, str | None]:
+    """``read_latency_p99_ns`` -> (``read_latency_p99``, ``ns``); no unit -> (name, None)."""
+    for suffix in sorted(NAME_UNITS, key=len, reverse=True):
+        if name.endswith("_" + suffix):
+            return name[: -len(suffix) - 1], NAME_UNITS[suffix]
+    return name, None

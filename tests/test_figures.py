@@ -169,3 +169,43 @@ def test_plot_cli(results, tmp_path, capsys, monkeypatch):
 def test_load_results_rejects_other_folders(tmp_path):
     with pytest.raises(UserError, match="runs.parquet"):
         load_results(tmp_path)
+
+
+def _stats(rows):
+    """A point_stats-like table: (scheme, banks, data, mean, half) rows."""
+    out = []
+    for p, (scheme, banks, data, mean, half) in enumerate(rows):
+        for metric in ["write_latency_p99_ns"]:
+            out.append({"point": p, "metric": metric, "write.scheme": scheme, "array.banks": float(banks),
+                        "workload.data": data, "mean": mean, "ci_half": half, "ci_low": mean - half,
+                        "ci_high": mean + half})
+    return pd.DataFrame(out)
+
+
+def test_error_bars_stay_in_the_metric_range_and_say_so():
+    # A latency is never negative; a t interval over few seeds can reach below zero.
+    st = _stats([("a", 4, "flip", 50.0, 80.0), ("b", 4, "flip", 60.0, 5.0)])
+    fig = bar_figure(st, "write_latency_p99_ns", "write.scheme", ["array.banks"])
+    segs = np.concatenate([c.get_segments() for c in fig.axes[0].collections])
+    assert min(s[:, 1].min() for s in segs) >= 0.0
+    assert "cut at the axis floor" in fig._suptitle.get_text()
+    # Whole-number settings print as integers, not 4.0.
+    labels = [t.get_text() for t in fig.axes[0].get_xticklabels()]
+    assert labels == ["banks=4"]
+
+
+def test_many_groups_become_small_multiples_with_the_legend_outside():
+    rows = [(s, b, d, 100.0 + b, 3.0) for d in ["flip", "random"] for b in [4, 8, 16] for s in ["a", "b"]]
+    fig = bar_figure(_stats(rows), "write_latency_p99_ns", "write.scheme", ["workload.data", "array.banks"])
+    panels = [ax for ax in fig.axes if ax.get_visible()]
+    assert [ax.get_title() for ax in panels] == ["data=flip", "data=random"]
+    legend = panels[-1].get_legend()
+    fig.canvas.draw()
+    # The legend box lies right of the last panel's data area.
+    assert legend.get_window_extent().x0 >= panels[-1].get_window_extent().x1
+
+
+def test_values_over_decades_get_a_log_axis():
+    rows = [("a", 4, "flip", 1e2, 5.0), ("b", 4, "flip", 1e6, 5e4)]
+    fig = bar_figure(_stats(rows), "write_latency_p99_ns", "write.scheme", ["array.banks"])
+    assert fig.axes[0].get_yscale() == "log"

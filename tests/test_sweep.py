@@ -49,6 +49,14 @@ def write_sweep(folder: Path, body: str, name: str = "s.toml") -> Path:
 # --- the sweep file and its expansion ------------------------------------------------
 
 
+def test_readme_sweep_example_loads_and_expands():
+    # The README shows workloads/sweep_mix_banks.toml; its zipped group moves together.
+    spec = load_sweep(ROOT / "workloads" / "sweep_mix_banks.toml")
+    pts = spec.points()
+    assert len(pts) == 3 * 4 * 3 and len(spec.seeds) == 3
+    assert {(p["array.banks"], p["controller.write_queue"]) for p in pts} == {(4, 16), (8, 32), (16, 64)}
+
+
 def test_example_sweeps_load_and_expand():
     spec = load_sweep(ROOT / "workloads" / "sweep_schemes.toml")
     assert len(spec.points()) == 24 and len(spec.seeds) == 3

@@ -13,22 +13,20 @@ def overrides(sets: tuple[str, ...]) -> dict:
 
 
 def fmt(v) -> str:
-    if isinstance(v, bool):
-        return str(v)
-    if isinstance(v, float):
-        if v != v:
-            return "-"
-        if v in (float("inf"), float("-inf")):
-            return str(v)
-        if abs(v) >= 1e6 or (abs(v) < 1e-3 and v != 0):
-            return f"{v:.4g}"
-        return f"{v:,.3f}"
-    return str(v)
+    """A value as printed in tables: four significant digits, ``-`` for null."""
+    from memsim.report.summary_text import fmt_value
+
+    return fmt_value(v)
 
 
-def print_summary(summary: dict, title: str = "") -> None:
+FULL_HELP = "Print every summary key, also those of features that are off."
+
+
+def print_summary(summary: dict, title: str = "", config: dict | None = None, full: bool = False) -> None:
+    """Print a summary in sections (see :mod:`memsim.report.summary_text`)."""
+    from memsim.report.summary_text import summary_lines
+
     if title:
         click.echo(title)
-    width = max(len(k) for k in summary)
-    for k, v in summary.items():
-        click.echo(f"  {k:<{width}}  {fmt(v)}")
+    for line in summary_lines(summary, config, full):
+        click.echo(line)

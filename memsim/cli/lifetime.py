@@ -5,7 +5,7 @@ from pathlib import Path
 
 import click
 
-from memsim.cli.common import SET_HELP, overrides, print_summary
+from memsim.cli.common import FULL_HELP, SET_HELP, overrides, print_summary
 
 
 @click.command(name="lifetime")
@@ -16,8 +16,9 @@ from memsim.cli.common import SET_HELP, overrides, print_summary
 @click.option("--method", type=click.Choice(["both", "extrapolated", "run_to_failure"]),
               help="Lifetime method (default lifetime.method).")
 @click.option("--out", type=click.Path(file_okay=False), help="Results folder (default results/<name>).")
+@click.option("--full", is_flag=True, help=FULL_HELP)
 def lifetime_cmd(config: str, sets: tuple[str, ...], write_rate: float | None, method: str | None,
-                 out: str | None) -> None:
+                 out: str | None, full: bool) -> None:
     """Estimate how long the memory of CONFIG (TOML) lasts; print the summary."""
     from memsim.experiment.lifetime import lifetime
     from memsim.report.wear_plot import save_wear_figure
@@ -27,7 +28,8 @@ def lifetime_cmd(config: str, sets: tuple[str, ...], write_rate: float | None, m
     folder = Path(out) if out else Path(run["out_dir"]) / run["name"]
     result.save(folder)
     save_wear_figure(result, folder)
-    print_summary(result.summary, f"lifetime {run['name']} (seed {result.seed}, {result.wall_s:.2f} s wall)")
+    print_summary(result.summary, f"lifetime {run['name']} (seed {result.seed}, {result.wall_s:.2f} s wall)",
+                  result.config, full)
     click.echo(f"results: {folder}")
 
 

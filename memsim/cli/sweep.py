@@ -81,11 +81,10 @@ def _print_means(res, varied: list[str]) -> None:
               help="Metric to draw (repeatable; default: the kept metrics, a few if many).")
 def plot_cmd(results_dir: str, metrics: tuple[str, ...]) -> None:
     """Draw the standard figures of a sweep's RESULTS_DIR and write its report.md."""
-    from memsim.report.figures import standard_figures
-    from memsim.report.page import write_page
+    from memsim.report.page import plot_sweep
 
-    figures = standard_figures(results_dir, metrics or None)
-    page = write_page(results_dir, figures, list(metrics) or None)
+    out = plot_sweep(results_dir, metrics or None)
+    figures, page = out["figures"], out["report"]
     for p in figures:
         click.echo(f"figure: {p} (+ .svg)")
     click.echo(f"report: {page}")

@@ -2,30 +2,15 @@
 from __future__ import annotations
 
 import math
-from collections.abc import Iterable, Iterator
-from pathlib import Path
-from typing import get_args
 
 import click
 
 from memsim.cli.common import SET_HELP, overrides
-from memsim.errors import ConfigError, UserError
-
-SUFFIXES = (".csv", ".csv.gz", ".parquet")
 
 
 @click.group(name="trace")
 def trace_group() -> None:
     """Make, check and summarize request traces (replay one with workload.pattern = "trace")."""
-
-
-def _counted(chunks: Iterable, counts: list[int]) -> Iterator:
-    """Pass chunks through, adding their reads, writes and hints to ``counts``."""
-    import numpy as np
-
-    for ch in chunks:
-        counts[:] = [a + int(b) for a, b in zip(counts, np.bincount(ch.op, minlength=3)[:3])]
-        yield ch
 
 
 @trace_group.command(name="make")
@@ -42,39 +27,13 @@ def make_cmd(spec: str, out: str, sets: tuple[str, ...], with_data: bool) -> Non
     requests; OUT ends in .csv, .csv.gz or .parquet.  Replaying OUT with the
     same seed and memory settings gives the same run as SPEC itself.
     """
-    from memsim.config import load_config
-    from memsim.config.schema import WorkloadSection
-    from memsim.experiment.build import build_source
-    from memsim.workload.trace import write_trace
+    from memsim.experiment.tools import make_trace
 
-    cfg = load_config(spec, overrides(sets))
-    w = cfg.workload
-    if w.pattern == "trace":
-        synthetic = [p for p in get_args(WorkloadSection.model_fields["pattern"].annotation) if p != "trace"]
-        raise ConfigError(f"{spec}: workload.pattern", "'trace'",
-                          "a synthetic pattern to generate from: " + ", ".join(synthetic))
-    if with_data and w.data == "flip":
-        raise ConfigError(f"{spec}: workload.data", "'flip' with --with-data",
-                          "random, zeros or ones (flip content depends on what the memory holds "
-                          "at replay; leave out --with-data and the replay draws the flips)")
-    path = Path(out)
-    if not path.name.lower().endswith(SUFFIXES):
-        raise UserError(out, f"suffix {''.join(path.suffixes) or 'none'!r}",
-                        ", ".join(SUFFIXES) + " (the form follows the suffix)")
-    if not path.parent.is_dir():
-        raise UserError(out, f"no folder {str(path.parent)!r}", "a path in an existing folder")
-    note = (f"made by memsim trace make from {Path(spec).name}: pattern {w.pattern}, arrival "
-            f"{w.arrival}, run.seed {cfg.run.seed}, line_bytes {cfg.array.line_bytes}; "
-            + ("write content stored" if with_data else f"no write content (data model {w.data})"))
-    counts = [0, 0, 0]
-    source = build_source(cfg, content=with_data)
-    try:
-        n = write_trace(path, _counted(source, counts), cfg.array.line_bytes, with_data, comment=note)
-    except OSError as exc:
-        raise UserError(out, f"a file that cannot be written ({exc.strerror})", "a writable path") from None
+    made = make_trace(spec, out, with_data=with_data, overrides=overrides(sets))
+    n, counts = made["requests"], [made["reads"], made["writes"]]
     click.echo(f"wrote {n:,} requests to {out}: {counts[0]:,} reads, {counts[1]:,} writes, "
                + ("write content stored" if with_data else "no write content"))
-    if w.arrival == "closed":
+    if made["closed_loop"]:
         click.echo('arrival "closed": every time_ns is 0; replay with workload.arrival = "closed"')
 
 
@@ -82,31 +41,32 @@ def _pct(x: float) -> str:
     return "-" if math.isnan(x) else f"{100 * x:5.1f} %"
 
 
-def _print_info(file: str, reader, info: dict, hist) -> None:
-    kind = {"text": "text", "gzip": "gzip text", "parquet": "Parquet"}[reader.kind]
-    content = "with write content" if reader.has_data else "no write content"
-    click.echo(f"trace {file} ({kind}; columns {','.join(reader.columns)}; {content})")
+def _print_info(file: str, info: dict) -> None:
+    kind = {"text": "text", "gzip": "gzip text", "parquet": "Parquet"}[info["kind"]]
+    content = "with write content" if info["has_data"] else "no write content"
+    click.echo(f"trace {file} ({kind}; columns {','.join(info['columns'])}; {content})")
+    hist = info["reuse_histogram"]
     n = info["requests"]
     rows = [("requests", f"{n:,}", "")]
     for op in ("reads", "writes", "hints"):
         rows.append((op, f"{info[op]:,}", _pct(info[f"{op[:-1]}_fraction"])))
     rows.append(("footprint", f"{info['footprint_lines']:,} lines",
-                 f"{info['footprint_bytes']:,} bytes at {reader.line_bytes} B/line"))
+                 f"{info['footprint_bytes']:,} bytes at {info['line_bytes']} B/line"))
     if n:
         rows.append(("time", f"{info['first_time_ns']:,.1f} .. {info['last_time_ns']:,.1f} ns",
                      f"span {info['span_ns']:,.1f} ns"))
         rate = info["request_rate_per_s"]
         rows.append(("request rate", "-" if math.isnan(rate) else f"{rate / 1e6:,.3f} M/s", ""))
-    if reader.skip_bad:
+    if info["skip_bad"]:
         rows.append(("bad lines skipped", f"{info['bad_lines']:,}", ""))
     width = max(len(r[0]) for r in rows)
     vwidth = max(len(r[1]) for r in rows)
     for key, value, extra in rows:
         click.echo(f"  {key:<{width}}  {value:>{vwidth}}  {extra}".rstrip())
-    for line in reader.bad_examples:
+    for line in info["bad_examples"]:
         click.echo(f"    {line}")
-    if info["bad_lines"] > len(reader.bad_examples):
-        click.echo(f"    ... {info['bad_lines'] - len(reader.bad_examples):,} more")
+    if info["bad_lines"] > len(info["bad_examples"]):
+        click.echo(f"    ... {info['bad_lines'] - len(info['bad_examples']):,} more")
     reuses = int(hist["accesses"].sum())
     scope = (f"first {info['reuse_window_accesses']:,} reads and writes" if info["reuse_sampled"]
              else "reads and writes")
@@ -132,11 +92,10 @@ def _print_info(file: str, reader, info: dict, hist) -> None:
               help="Also check that every line index is below this.")
 def info_cmd(file: str, skip_bad: bool, line_bytes: int, footprint: int | None) -> None:
     """Check the trace FILE and summarize it: mix, footprint, rate, reuse distances."""
-    from memsim.workload.trace import TraceReader, trace_info
+    from memsim.experiment.tools import trace_summary
 
-    reader = TraceReader(file, skip_bad=skip_bad, line_bytes=line_bytes, footprint=footprint)
-    info, hist = trace_info(reader)
-    _print_info(file, reader, info, hist)
+    info = trace_summary(file, skip_bad=skip_bad, line_bytes=line_bytes, footprint=footprint)
+    _print_info(file, info)
 
 
 COMMANDS = [trace_group]

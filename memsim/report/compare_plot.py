@@ -4,7 +4,11 @@ Takes the side-by-side table of :func:`memsim.experiment.compare.compare`
 (one row per workload x setting, a mean column per metric and a
 ``<metric>_ci_half`` column beside it), as returned or read back from
 ``compare.csv``.  Error bars show the confidence interval of the mean where
-there is one (more than one seed).
+there is one (more than one seed), cut at zero or at a log axis' floor (the
+legend says so).  A panel turns logarithmic when its values span more than
+two decades (one workload's queues in milliseconds would otherwise flatten
+another's nanoseconds); a metric with no value in any row gets no panel,
+and a missing value is marked "n/a" instead of drawn as zero.
 """
 from __future__ import annotations
 
@@ -17,7 +21,7 @@ import pandas as pd
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
-from memsim.report.figures import axis_label, save_figure
+from memsim.report.figures import axis_label, clipped_interval, save_figure, wide_range
 
 CI_SUFFIX = "_ci_half"
 MAX_COLUMNS = 3
@@ -36,6 +40,8 @@ def compare_figure(table: pd.DataFrame, metrics: Sequence[str] | None = None) ->
     names the settings once for all panels.
     """
     metrics = list(metrics) if metrics is not None else table_metrics(table)
+    # A metric no row has a value for (null: not meaningful for these runs) gets no panel.
+    metrics = [m for m in metrics if m in table.columns and np.isfinite(table[m].to_numpy(float)).any()]
     if not metrics:
         raise ValueError("the table has no metric columns (<metric> beside <metric>_ci_half)")
     settings = list(dict.fromkeys(table["setting"].astype(str)))
@@ -51,25 +57,39 @@ def compare_figure(table: pd.DataFrame, metrics: Sequence[str] | None = None) ->
     key = (table["workload"].astype(str) + "\0" + table["setting"].astype(str)).tolist()
     index = {k: i for i, k in enumerate(key)}
     handles = []
+    any_cut = False
     for n, metric in enumerate(metrics):
         ax = fig.add_subplot(nrows, ncols, n + 1)
+        vals = table[metric].to_numpy(float)
+        log_y = wide_range(vals)
+        nonneg = bool((vals[np.isfinite(vals)] >= 0).all())
         for j, s in enumerate(settings):
             rows = [index.get(f"{w}\0{s}") for w in workloads]
             means = np.array([table[metric].iloc[i] if i is not None else np.nan for i in rows], float)
             halves = np.array([table[metric + CI_SUFFIX].iloc[i] if i is not None else np.nan
                                for i in rows], float)
             pos = np.arange(len(workloads)) + (j - (len(settings) - 1) / 2) * width
-            err = np.where(np.isfinite(halves), halves, 0.0) if np.isfinite(halves).any() else None
-            bars = ax.bar(pos, np.nan_to_num(means, nan=0.0), width, color=colors[j], label=s,
+            err = None
+            if np.isfinite(halves).any():
+                lo, hi, cut = clipped_interval(means, means - halves, means + halves, log_y, nonneg)
+                any_cut |= cut
+                err = np.vstack([np.where(np.isfinite(lo), means - lo, 0.0),
+                                 np.where(np.isfinite(hi), hi - means, 0.0)])
+            bars = ax.bar(pos, means, width, color=colors[j], label=s,
                           yerr=err, capsize=3 if err is not None else 0,
                           error_kw={"elinewidth": 1, "ecolor": "0.2"})
+            for x, m in zip(pos, means):
+                if not np.isfinite(m):
+                    ax.annotate("n/a", (x, 0), xycoords=("data", "axes fraction"), ha="center",
+                                va="bottom", fontsize="x-small", color="0.4", rotation=90)
             if n == 0:
                 handles.append(bars)
-        vals = table[metric].to_numpy(float)
-        if np.isfinite(vals).any() and (vals[np.isfinite(vals)] >= 0).all():
+        if log_y:
+            ax.set_yscale("log")
+        elif np.isfinite(vals).any() and nonneg:
             # A wide interval of a positive quantity may reach below zero; the axis need not.
             ax.set_ylim(bottom=0)
-        ax.set_title(axis_label(metric), fontsize="medium")
+        ax.set_title(axis_label(metric) + (" (log)" if log_y else ""), fontsize="medium")
         ax.set_xticks(np.arange(len(workloads)), workloads if len(workloads) > 1 else [""],
                       rotation=20 if len(workloads) > 3 else 0,
                       ha="right" if len(workloads) > 3 else "center", fontsize="small")
@@ -80,6 +100,8 @@ def compare_figure(table: pd.DataFrame, metrics: Sequence[str] | None = None) ->
     multi = table["seeds"].max() > 1 if "seeds" in table.columns else False
     level = float(table.attrs.get("level", 0.95))
     title = f"error bars: {level:.0%} CI of the mean over seeds" if multi else "one seed per run"
+    if any_cut:
+        title += ", cut at the axis floor"
     fig.legend(handles, settings, loc="lower center", ncol=min(LEGEND_COLUMNS, len(settings)), fontsize="small",
                title=f"setting ({title})", title_fontsize="x-small", frameon=False)
     fig.tight_layout(rect=(0, (0.35 + 0.22 * legend_rows) / fig.get_figheight(), 1, 1))

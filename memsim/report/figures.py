@@ -31,23 +31,14 @@ from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
 
 from memsim.errors import UserError
 from memsim.metrics.result import atomic_write_bytes
+from memsim.units import split_unit
 
-UNITS = {"ns": "ns", "pj": "pJ", "gbps": "GB/s", "years": "years", "per_s": "1/s", "s": "s",
-         "ua": "uA", "bytes": "bytes", "writes": "writes", "lines": "lines"}
 # Shown first when a sweep kept every summary key.
 PREFERRED = ("throughput_gbps", "read_latency_p99_ns", "write_latency_p99_ns", "energy_per_bit_pj",
              "lifetime_years")
 MAX_LINES = 8
 MAX_GROUPS = 12
 FORMATS = ("png", "svg")
-
-
-def split_unit(name: str) -> tuple[str, str | None]:
-    """``read_latency_p99_ns`` -> (``read_latency_p99``, ``ns``); no unit -> (name, None)."""
-    for suffix in sorted(UNITS, key=len, reverse=True):
-        if name.endswith("_" + suffix):
-            return name[: -len(suffix) - 1], UNITS[suffix]
-    return name, None
 
 
 def axis_label(name: str) -> str:
@@ -146,12 +137,75 @@ def select(df: pd.DataFrame, fixed: dict[str, Any]) -> pd.DataFrame:
     return df[mask]
 
 
+def setting_text(v: Any) -> str:
+    """A setting's value as a reader expects it: ``4`` for a whole number stored as ``4.0``."""
+    if isinstance(v, (float, np.floating)) and float(v).is_integer():
+        return str(int(v))
+    return str(v)
+
+
 def _fixed_note(fixed: dict[str, Any]) -> str:
-    return (" [" + ", ".join(f"{short(k)}={v}" for k, v in fixed.items()) + "]") if fixed else ""
+    return (" [" + ", ".join(f"{short(k)}={setting_text(v)}" for k, v in fixed.items()) + "]") if fixed else ""
 
 
 def _combo_label(keys: Sequence[str], values: Sequence[Any]) -> str:
-    return ", ".join(f"{short(k)}={v}" for k, v in zip(keys, values)) or "all"
+    return ", ".join(f"{short(k)}={setting_text(v)}" for k, v in zip(keys, values)) or "all"
+
+
+MARKERS = ("o", "s", "^", "D", "v", "P")
+LINESTYLES = ("-", "--", ":", "-.")
+
+
+def _styles(hue: Sequence[str], combos: Sequence[tuple]) -> list[dict[str, Any]]:
+    """Line styles that keep series apart even where they coincide.
+
+    The first key picks the colour; the other keys pick line style and
+    marker, drawn hollow after the first.  Series drawn earlier are wider,
+    so one lying exactly on a later one still shows as its outline.
+    """
+    firsts = list(dict.fromkeys(c[0] for c in combos)) if hue else []
+    rests = list(dict.fromkeys(c[1:] for c in combos)) if hue else []
+    out = []
+    for n, c in enumerate(combos):
+        if len(hue) >= 2:
+            i, j = firsts.index(c[0]), rests.index(c[1:])
+        else:
+            i, j = n, n
+        k = (len(combos) - 1 - n) / max(1, len(combos) - 1)      # 1 for the first, 0 for the last
+        out.append({"color": f"C{i % 10}", "linestyle": LINESTYLES[j % len(LINESTYLES)],
+                    "marker": MARKERS[j % len(MARKERS)], "lw": 1.2 + 2.4 * k, "ms": 4.5 + 4.0 * k,
+                    "mfc": None if j == 0 else "none"})
+    return out
+
+
+def _outside_legend(ax, **kw: Any) -> None:
+    ax.legend(loc="upper left", bbox_to_anchor=(1.02, 1.0), borderaxespad=0.0, fontsize="small", **kw)
+
+
+def wide_range(values: np.ndarray) -> bool:
+    """Positive values over more than two decades read best on a log axis."""
+    v = values[np.isfinite(values)]
+    return bool(v.size and (v > 0).all() and v.max() > 100 * v.min())
+
+
+def clipped_interval(mean: np.ndarray, lo: np.ndarray, hi: np.ndarray, log: bool,
+                      nonneg: bool) -> tuple[np.ndarray, np.ndarray, bool]:
+    """Interval ends kept inside what the metric and the axis can show.
+
+    A positive metric's interval can reach below zero (a t interval over
+    few seeds is symmetric); it is cut at zero, or on a log axis at a tenth
+    of the smallest mean.  Returns the ends and whether any was cut.
+    """
+    floor = None
+    if log:
+        m = mean[np.isfinite(mean) & (mean > 0)]
+        floor = 0.1 * m.min() if m.size else None
+    elif nonneg:
+        floor = 0.0
+    if floor is None:
+        return lo, hi, False
+    cut = np.isfinite(lo) & (lo < floor)
+    return np.where(cut, floor, lo), hi, bool(cut.any())
 
 
 def line_figure(stats: pd.DataFrame, metric: str, x: str, others: Sequence[str],
@@ -161,30 +215,40 @@ def line_figure(stats: pd.DataFrame, metric: str, x: str, others: Sequence[str],
     ``followers`` are keys zipped with ``x`` (named under the axis).  Axes
     turn logarithmic when the values span a wide range (x: values in even
     ratios such as 4, 8, 16 banks, or two decades; y: more than two decades).
+    Bands are cut at zero (or at the log axis' floor), and the legend says so.
     """
     st = stats[stats["metric"] == metric]
     hue, fixed = narrow(st, others, MAX_LINES)
     st = select(st, fixed)
-    fig = Figure(figsize=(6.4, 4.2))
+    fig = Figure(figsize=(7.6 if hue else 6.0, 4.2), layout="constrained")
     FigureCanvasAgg(fig)
     ax = fig.add_subplot()
-    groups = st.groupby(hue, sort=False) if hue else [((), st)]
-    for values, g in groups:
-        values = values if isinstance(values, tuple) else (values,)
+    means_all = st["mean"].to_numpy(float)
+    log_y = wide_range(means_all)
+    nonneg = bool(np.nanmin(means_all) >= 0) if np.isfinite(means_all).any() else False
+    groups = list(st.groupby(hue, sort=False)) if hue else [((), st)]
+    combos = [v if isinstance(v, tuple) else (v,) for v, _ in groups]
+    any_cut = False
+    for style, values, (_, g) in zip(_styles(hue, combos), combos, groups):
         g = g.sort_values(x)
         xs = g[x].to_numpy(float)
-        (line,) = ax.plot(xs, g["mean"].to_numpy(float), marker="o", ms=4, label=_combo_label(hue, values))
-        lo, hi = g["ci_low"].to_numpy(float), g["ci_high"].to_numpy(float)
+        mean = g["mean"].to_numpy(float)
+        ax.plot(xs, mean, label=_combo_label(hue, values), **style)
+        lo, hi, cut = clipped_interval(mean, g["ci_low"].to_numpy(float), g["ci_high"].to_numpy(float),
+                                        log_y, nonneg)
+        any_cut |= cut
         if np.isfinite(lo).any():
-            ax.fill_between(xs, lo, hi, color=line.get_color(), alpha=0.15, lw=0)
-    _scale_axes(ax, st[x].to_numpy(float), st["mean"].to_numpy(float))
+            ax.fill_between(xs, lo, hi, color=style["color"], alpha=0.12, lw=0)
+    _scale_axes(ax, st[x].to_numpy(float), means_all)
     ax.set_xlabel(axis_label(x) + (f"\n(moves with {', '.join(map(short, followers))})" if followers else ""))
     ax.set_ylabel(axis_label(metric))
     ax.set_title(f"{axis_label(metric)} vs {short(x)}{_fixed_note(fixed)}", fontsize="medium")
     ax.grid(True, alpha=0.3)
+    note = f"band: {level:.0%} CI of the mean" + (" (cut at the axis floor)" if any_cut else "")
     if hue:
-        ax.legend(fontsize="small", title=f"band: {level:.0%} CI of the mean", title_fontsize="x-small")
-    fig.tight_layout()
+        _outside_legend(ax, title=note, title_fontsize="x-small")
+    else:
+        ax.text(0.99, 0.99, note, transform=ax.transAxes, ha="right", va="top", fontsize="x-small")
     return fig
 
 
@@ -200,41 +264,74 @@ def _scale_axes(ax, xs: np.ndarray, ys: np.ndarray) -> None:
         if ticks.size <= 12:
             ax.set_xticks(ticks, [f"{v:g}" for v in ticks])
             ax.xaxis.set_minor_formatter(NullFormatter())
-    if ys.size and (ys > 0).all() and ys.max() > 100 * ys.min():
+    if wide_range(ys):
         ax.set_yscale("log")
     elif ys.size and (ys >= 0).all():
         # A wide interval of a positive quantity may reach below zero; the axis need not.
         ax.set_ylim(bottom=0)
 
 
+MAX_PANEL_GROUPS = 4
+
+
 def bar_figure(stats: pd.DataFrame, metric: str, key: str, others: Sequence[str]) -> Figure:
-    """Grouped bars of ``metric`` per value of categorical ``key``; groups are combinations of ``others``."""
+    """Grouped bars of ``metric`` per value of categorical ``key``; groups are combinations of ``others``.
+
+    With more than a few groups the figure becomes small multiples: one
+    panel per value of the first other key, sharing the metric axis.  Error
+    bars are the interval of the mean, cut at zero (or at the log axis'
+    floor) where they would leave the metric's range; the title says so.
+    """
     st = stats[stats["metric"] == metric]
     group_keys, fixed = narrow(st, others, MAX_GROUPS)
     st = select(st, fixed)
     bars = list(dict.fromkeys(st[key]))
     groups = list(dict.fromkeys(map(tuple, st[group_keys].to_numpy().tolist()))) if group_keys else [()]
-    fig = Figure(figsize=(max(5.0, 1.0 + 0.45 * len(bars) * len(groups)), 4.2))
+    if len(groups) > MAX_PANEL_GROUPS and len(group_keys) >= 2:
+        panel_key, inner_keys = group_keys[0], group_keys[1:]
+    else:
+        panel_key, inner_keys = None, group_keys
+    panels = list(dict.fromkeys(st[panel_key])) if panel_key else [None]
+    inner = list(dict.fromkeys(map(tuple, st[inner_keys].to_numpy().tolist()))) if inner_keys else [()]
+    ncols = min(len(panels), 3)
+    nrows = -(-len(panels) // ncols)
+    width_in = 1.6 + ncols * max(2.6, 0.35 * len(bars) * len(inner) + 0.6)
+    fig = Figure(figsize=(width_in, 0.6 + 3.2 * nrows), layout="constrained")
     FigureCanvasAgg(fig)
-    ax = fig.add_subplot()
+    axes = fig.subplots(nrows, ncols, sharey=True, squeeze=False).ravel()
+    means_all = st["mean"].to_numpy(float)
+    log_y = wide_range(means_all)
+    nonneg = bool(np.nanmin(means_all) >= 0) if np.isfinite(means_all).any() else False
     width = 0.8 / len(bars)
-    for j, b in enumerate(bars):
-        means, errs = [], []
-        for gv in groups:
-            row = select(st, {key: b, **dict(zip(group_keys, gv))})
-            means.append(float(row["mean"].iloc[0]) if len(row) else np.nan)
-            errs.append(float(row["ci_half"].iloc[0]) if len(row) else np.nan)
-        pos = np.arange(len(groups)) + (j - (len(bars) - 1) / 2) * width
-        ax.bar(pos, means, width, label=str(b),
-               yerr=np.where(np.isfinite(errs), errs, 0.0), capsize=3)
-    ax.set_xticks(np.arange(len(groups)), [_combo_label(group_keys, g) if group_keys else "" for g in groups],
-                  rotation=30 if len(groups) > 3 else 0, ha="right" if len(groups) > 3 else "center",
-                  fontsize="small")
-    ax.set_ylabel(axis_label(metric))
-    ax.set_title(f"{axis_label(metric)} by {short(key)}{_fixed_note(fixed)}", fontsize="medium")
-    ax.legend(title=short(key), fontsize="small")
-    ax.grid(True, axis="y", alpha=0.3)
-    fig.tight_layout()
+    any_cut = False
+    for ax, pv in zip(axes, panels):
+        sub = st if panel_key is None else select(st, {panel_key: pv})
+        for j, b in enumerate(bars):
+            rows = [select(sub, {key: b, **dict(zip(inner_keys, gv))}) for gv in inner]
+            mean = np.array([float(r["mean"].iloc[0]) if len(r) else np.nan for r in rows])
+            lo = np.array([float(r["ci_low"].iloc[0]) if len(r) else np.nan for r in rows])
+            hi = np.array([float(r["ci_high"].iloc[0]) if len(r) else np.nan for r in rows])
+            lo, hi, cut = clipped_interval(mean, lo, hi, log_y, nonneg)
+            any_cut |= cut
+            err = np.vstack([np.where(np.isfinite(lo), mean - lo, 0.0), np.where(np.isfinite(hi), hi - mean, 0.0)])
+            pos = np.arange(len(inner)) + (j - (len(bars) - 1) / 2) * width
+            ax.bar(pos, mean, width, label=setting_text(b), color=f"C{j % 10}", yerr=err, capsize=3)
+        labels = [_combo_label(inner_keys, g) if inner_keys else "" for g in inner]
+        crowded = len(inner) > 3 or max((len(t) for t in labels), default=0) > 14
+        ax.set_xticks(np.arange(len(inner)), labels, rotation=25 if crowded else 0,
+                      ha="right" if crowded else "center", fontsize="small")
+        if panel_key is not None:
+            ax.set_title(f"{short(panel_key)}={setting_text(pv)}", fontsize="small")
+        ax.grid(True, axis="y", alpha=0.3)
+        if log_y:
+            ax.set_yscale("log")
+    for ax in axes[len(panels):]:
+        ax.set_visible(False)
+    for r in range(nrows):
+        axes[r * ncols].set_ylabel(axis_label(metric))
+    note = " (error bars: CI of the mean, cut at the axis floor)" if any_cut else ""
+    fig.suptitle(f"{axis_label(metric)} by {short(key)}{_fixed_note(fixed)}{note}", fontsize="medium")
+    _outside_legend(axes[ncols - 1] if len(panels) >= ncols else axes[len(panels) - 1], title=short(key))
     return fig
 
 

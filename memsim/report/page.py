@@ -98,3 +98,16 @@ def write_page(folder: str | Path, figures: Sequence[Path] = (), metrics: Sequen
     path = res.folder / "report.md"
     atomic_write_text(path, "\n".join(lines))
     return path
+
+
+def plot_sweep(folder: str | Path, metrics: Sequence[str] | None = None) -> dict[str, object]:
+    """Draw the standard figures of a sweep results ``folder`` and write its report.md.
+
+    Returns ``{"figures": [PNG paths], "report": path of report.md}`` (an
+    SVG sits beside each PNG).
+    """
+    from memsim.report.figures import standard_figures
+
+    figures = standard_figures(folder, list(metrics) if metrics else None)
+    page = write_page(folder, figures, list(metrics) if metrics else None)
+    return {"figures": figures, "report": page}
