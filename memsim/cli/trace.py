@@ -134,9 +134,9 @@ def info_cmd(file: str, skip_bad: bool, line_bytes: int, footprint: int | None) 
     """Check the trace FILE and summarize it: mix, footprint, rate, reuse distances."""
     from memsim.workload.trace import TraceReader, trace_info
 
-    reader = TraceReader(file, skip_bad=skip_bad, line_bytes=line_bytes, footprint=footprint)
-    info, hist = trace_info(reader)
-    _print_info(file, reader, info, hist)
+    with TraceReader(file, skip_bad=skip_bad, line_bytes=line_bytes, footprint=footprint) as reader:
+        info, hist = trace_info(reader)
+        _print_info(file, reader, info, hist)
 
 
 COMMANDS = [trace_group]
