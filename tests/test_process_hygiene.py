@@ -117,7 +117,7 @@ def long_trace(tmp_path):
 
 
 def test_reader_thread_ends_on_every_path(tmp_path, long_trace):
-    small = dict(block_bytes=4096, chunk_size=256)
+    small = {"block_bytes": 4096, "chunk_size": 256}
     # A bad row part-way: the error ends the pass and its thread.
     bad = tmp_path / "bad.csv"
     bad.write_text(long_trace.read_text().replace("\n30000,R,", "\n30000,Q,"))
@@ -150,7 +150,7 @@ def test_rejected_trace_exits_cleanly_every_time(tmp_path, long_trace):
     codes = []
     for _ in range(40):
         p = subprocess.run([sys.executable, "-m", "memsim.cli", "trace", "info", str(bad)], env=ENV,
-                           capture_output=True, text=True)
+                           capture_output=True, text=True, check=False)
         codes.append(p.returncode)
         assert "terminate called" not in p.stderr and p.stderr.count("\n") == 1, p.stderr
     assert codes == [2] * 40
@@ -173,7 +173,7 @@ def test_refresh_overload_is_refused_up_front():
 def test_refresh_overload_cli_is_one_line(tmp_path):
     args = [a for k, v in OVERLOAD.items() for a in ("--set", f"{k}={v!r}".replace("'", '"'))]
     p = subprocess.run([sys.executable, "-m", "memsim.cli", "run", str(DEMO), *args, "--out", str(tmp_path / "r")],
-                       env=ENV, capture_output=True, text=True, timeout=120)
+                       env=ENV, capture_output=True, text=True, timeout=120, check=False)
     assert p.returncode == 2 and p.stderr.count("\n") == 1 and "refresh.policy" in p.stderr, p.stderr
     assert not (tmp_path / "r").exists()
 

@@ -264,7 +264,7 @@ def test_cache_entry_edited_by_hand_is_detected_and_rerun(tmp_path):
                      fixed={"workload.requests": 800}, name="chk")
     first = run_sweep(spec, workers=1, out=tmp_path, progress=False)
     assert first.ran == 2
-    entry_file = sorted((tmp_path / "cache").glob("*.json"))[0]
+    entry_file = min((tmp_path / "cache").glob("*.json"))
     doc = json.loads(entry_file.read_text())
     true_value = doc["summary"]["throughput_gbps"]
     doc["summary"]["throughput_gbps"] = 999.0

@@ -1,5 +1,4 @@
 """Sweeps: the sweep file, expansion, seeds, cache and resume, failures, atomic files, statistics."""
-import json
 import os
 import signal
 import subprocess

@@ -5,7 +5,14 @@ from pathlib import Path
 
 import click
 
-from memsim.cli.common import REPLACE_HELP, SET_HELP, prepare_output, print_summary, report_saved, save_results
+from memsim.cli.common import (
+    REPLACE_HELP,
+    SET_HELP,
+    prepare_output,
+    print_summary,
+    report_saved,
+    save_results,
+)
 
 
 @click.command(name="lifetime")

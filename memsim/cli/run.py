@@ -3,7 +3,14 @@ from __future__ import annotations
 
 import click
 
-from memsim.cli.common import REPLACE_HELP, SET_HELP, prepare_output, print_summary, report_saved, save_results
+from memsim.cli.common import (
+    REPLACE_HELP,
+    SET_HELP,
+    prepare_output,
+    print_summary,
+    report_saved,
+    save_results,
+)
 
 
 @click.command()

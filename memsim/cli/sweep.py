@@ -8,7 +8,7 @@ from pathlib import Path
 
 import click
 
-from memsim.cli.common import REPLACE_HELP, fmt
+from memsim.cli.common import fmt
 from memsim.errors import ConfigError
 
 MAX_PRINTED_POINTS = 30

@@ -4,7 +4,9 @@ One small JSON file per finished run (one point of a sweep with one seed),
 written atomically as soon as the run finishes.  A sweep that was killed
 finds the finished runs here and redoes only the others; a sweep whose grid
 grew finds the points it shares with the old grid.  Failed runs are not
-cached, so they are tried again.
+cached, so they are tried again.  Each entry carries a checksum of its
+content (strict JSON, ``null`` for NaN); an entry that does not match,
+edited by hand or damaged, is run again.
 
 The key hashes the resolved config (``RunConfig.model_dump()``, keys sorted),
 the memsim version, a digest of the model's source code and the content of

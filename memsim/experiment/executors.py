@@ -92,7 +92,7 @@ def watch_parent(parent_pid: int, poll_s: float = PARENT_POLL_S) -> None:
     def watch() -> None:
         while os.getppid() == parent_pid:
             time.sleep(poll_s)
-        os._exit(70)  # noqa: SLF001 - no cleanup wanted: the parent that would collect results is gone
+        os._exit(70)  # no cleanup wanted: the parent that would collect results is gone
 
     if os.getppid() != parent_pid:
         os._exit(70)

@@ -19,7 +19,7 @@ from collections.abc import Callable, Generator, Iterator
 from contextlib import closing
 from functools import partial
 from pathlib import Path
-from typing import BinaryIO
+from typing import BinaryIO, Self
 
 import numpy as np
 import pyarrow as pa
@@ -174,7 +174,7 @@ class TraceReader:
         for gen in list(self._live):
             gen.close()
 
-    def __enter__(self) -> TraceReader:
+    def __enter__(self) -> Self:
         return self
 
     def __exit__(self, *exc: object) -> None:
@@ -183,7 +183,7 @@ class TraceReader:
     def __del__(self) -> None:
         try:
             self.close()
-        except Exception:  # noqa: BLE001 - nothing to report to during garbage collection
+        except Exception:  # noqa: BLE001, S110 - nothing to report to during garbage collection
             pass
 
     # -- shared
