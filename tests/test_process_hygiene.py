@@ -70,7 +70,6 @@ def _alive(pid: int) -> bool:
     return state != "Z"             # a zombie has exited; only its parent's wait is missing
 
 
-@pytest.mark.slow
 @pytest.mark.skipif(not Path("/proc/self/stat").exists(), reason="needs /proc to find the workers")
 def test_killed_sweep_leaves_no_worker(tmp_path):
     spec = tmp_path / "long.toml"

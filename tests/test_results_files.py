@@ -70,6 +70,8 @@ def _output_cases(tmp_path: Path):
         "drift --out is a file": (["drift", DEMO, "--out", blocker], str(blocker)),
         "lifetime --out is a file": (["lifetime", life, "--write-rate", "2", "--out", blocker], str(blocker)),
         "sweep --out is a file": (["sweep", sweep, "--workers", "1", "--quiet", "--out", blocker], str(blocker)),
+        "trace make into a folder": (["trace", "make", DEMO, named], str(named)),
+        "trace make below a file": (["trace", "make", DEMO, blocker / "t.csv"], str(blocker)),
         "compare --out below a file": (["compare", DEMO, "--vary", "write.scheme=full_line,flip_n_write",
                                         *SMALL, "--workers", "1", "--quiet", "--out", blocker / "c"],
                                        str(blocker)),
@@ -78,7 +80,7 @@ def _output_cases(tmp_path: Path):
 
 CASES = ["out_dir is a file", "results folder is a file", "--out is a file", "--out below a file",
          "drift --out is a file", "lifetime --out is a file", "sweep --out is a file",
-         "compare --out below a file"]
+         "compare --out below a file", "trace make into a folder", "trace make below a file"]
 
 
 @pytest.mark.parametrize("case", CASES)
@@ -102,6 +104,18 @@ def test_unwritable_folder_is_refused_up_front(tmp_path, capsys, monkeypatch):
         locked.chmod(0o700)
     one_line_error(code, stdout, stderr, str(locked))
     assert stdout == ""
+
+
+def test_folder_without_write_permission_is_named(tmp_path, monkeypatch):
+    from memsim.errors import UserError
+    from memsim.metrics import files
+
+    # Root may write anywhere, so the permission answer is stubbed here; the test
+    # above checks the real thing for other users.
+    monkeypatch.setattr(files.os, "access", lambda path, mode: Path(path) != tmp_path)
+    with pytest.raises(UserError) as exc:
+        files.check_folder(tmp_path / "a" / "b", "--out")
+    assert exc.value.one_line().startswith(f"--out '{tmp_path / 'a' / 'b'}': found folder '{tmp_path}' not writable")
 
 
 def test_results_that_cannot_be_saved_go_to_a_rescue_folder(tmp_path, capsys, monkeypatch):

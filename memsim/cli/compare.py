@@ -58,7 +58,8 @@ def compare_cmd(config: str, vary: tuple[str, ...], workloads: tuple[str, ...], 
                              workloads=list(workloads) if workloads else None,
                              metrics=list(metrics) or None, source="--vary", fixed_origin="--set")
     folder = Path(out) if out else Path("results") / spec.name
-    described = {k: v for k, v in spec.to_json().items() if k != "name"}
+    # What the comparison is, wherever it is run from: the config by its absolute path.
+    described = {**{k: v for k, v in spec.to_json().items() if k != "name"}, "base": str(Path(config).resolve())}
     owned = claim(folder, "compare", fingerprint(comparison=described),
                   where="--out" if out else f"{config}: run.name", replace=replace, source=config,
                   hint="--out FOLDER for a folder of its own")

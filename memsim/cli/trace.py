@@ -45,6 +45,7 @@ def make_cmd(spec: str, out: str, sets: tuple[str, ...], with_data: bool) -> Non
     from memsim.config import load_config
     from memsim.config.schema import WorkloadSection
     from memsim.experiment.build import build_source
+    from memsim.metrics.files import check_folder
     from memsim.workload.trace import write_trace
 
     cfg = load_config(spec, overrides(sets))
@@ -63,6 +64,9 @@ def make_cmd(spec: str, out: str, sets: tuple[str, ...], with_data: bool) -> Non
                         ", ".join(SUFFIXES) + " (the form follows the suffix)")
     if not path.parent.is_dir():
         raise UserError(out, f"no folder {str(path.parent)!r}", "a path in an existing folder")
+    if path.is_dir():
+        raise UserError(out, "a folder", "the path of a trace file to write")
+    check_folder(path.parent, out)
     note = (f"made by memsim trace make from {Path(spec).name}: pattern {w.pattern}, arrival "
             f"{w.arrival}, run.seed {cfg.run.seed}, line_bytes {cfg.array.line_bytes}; "
             + ("write content stored" if with_data else f"no write content (data model {w.data})"))
