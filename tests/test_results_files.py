@@ -57,6 +57,7 @@ def _output_cases(tmp_path: Path):
     named = tmp_path / "named"
     named.mkdir()
     (named / "demo").write_text("a file where the results folder would go\n")
+    (named / "cache").write_text("a file where the cache folder would go\n")
     life = tmp_path / "life.toml"
     life.write_text(LIFETIME_TOML)
     sweep = sweep_file(tmp_path)
@@ -70,6 +71,7 @@ def _output_cases(tmp_path: Path):
         "drift --out is a file": (["drift", DEMO, "--out", blocker], str(blocker)),
         "lifetime --out is a file": (["lifetime", life, "--write-rate", "2", "--out", blocker], str(blocker)),
         "sweep --out is a file": (["sweep", sweep, "--workers", "1", "--quiet", "--out", blocker], str(blocker)),
+        "sweep cache is a file": (["sweep", sweep, "--workers", "1", "--quiet", "--out", named], str(named / "cache")),
         "trace make into a folder": (["trace", "make", DEMO, named], str(named)),
         "trace make below a file": (["trace", "make", DEMO, blocker / "t.csv"], str(blocker)),
         "compare --out below a file": (["compare", DEMO, "--vary", "write.scheme=full_line,flip_n_write",
@@ -80,7 +82,7 @@ def _output_cases(tmp_path: Path):
 
 CASES = ["out_dir is a file", "results folder is a file", "--out is a file", "--out below a file",
          "drift --out is a file", "lifetime --out is a file", "sweep --out is a file",
-         "compare --out below a file", "trace make into a folder", "trace make below a file"]
+         "compare --out below a file", "trace make into a folder", "trace make below a file", "sweep cache is a file"]
 
 
 @pytest.mark.parametrize("case", CASES)

@@ -48,7 +48,7 @@ def compare_cmd(config: str, vary: tuple[str, ...], workloads: tuple[str, ...], 
     from memsim.errors import ConfigError
     from memsim.experiment.compare import make_compare_spec, run_compare
     from memsim.experiment.outputs import claim, fingerprint
-    from memsim.metrics.files import SaveFailed, save_or_rescue
+    from memsim.metrics.files import SaveFailed, check_folder, save_or_rescue
     from memsim.report.compare_plot import save_compare_figure
 
     if not Path(config).is_file():
@@ -60,9 +60,10 @@ def compare_cmd(config: str, vary: tuple[str, ...], workloads: tuple[str, ...], 
     folder = Path(out) if out else Path("results") / spec.name
     # What the comparison is, wherever it is run from: the config by its absolute path.
     described = {**{k: v for k, v in spec.to_json().items() if k != "name"}, "base": str(Path(config).resolve())}
-    owned = claim(folder, "compare", fingerprint(comparison=described),
-                  where="--out" if out else f"{config}: run.name", replace=replace, source=config,
-                  hint="--out FOLDER for a folder of its own")
+    where = "--out" if out else f"{config}: run.name"
+    owned = claim(folder, "compare", fingerprint(comparison=described), where=where, replace=replace,
+                  source=config, hint="--out FOLDER for a folder of its own")
+    check_folder(owned.folder / "cache", where)
     t0 = time.perf_counter()
     old = signal.signal(signal.SIGTERM, _terminate)
     try:

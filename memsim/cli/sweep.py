@@ -41,15 +41,17 @@ def sweep_cmd(file: str, workers: int | None, scheduler: str | None, out: str | 
     """
     from memsim.experiment.outputs import claim, fingerprint
     from memsim.experiment.sweep import load_sweep, run_sweep
-    from memsim.metrics.files import SaveFailed
+    from memsim.metrics.files import SaveFailed, check_folder
 
     if not Path(file).is_file():
         raise ConfigError(file, "no such file", "a path to a sweep file (TOML)")
     spec = load_sweep(file)
     folder = Path(out) if out else Path("results") / spec.name
     source = str(Path(file).resolve())
-    owned = claim(folder, "sweep", fingerprint(sweep_file=source), where="--out" if out else f"{file}: sweep.name",
-                  replace=replace, source=file, hint="set sweep.name (or --out) for a folder of its own")
+    where = "--out" if out else f"{file}: sweep.name"
+    owned = claim(folder, "sweep", fingerprint(sweep_file=source), where=where, replace=replace, source=file,
+                  hint="set sweep.name (or --out) for a folder of its own")
+    check_folder(owned.folder / "cache", where)
     t0 = time.perf_counter()
     old = signal.signal(signal.SIGTERM, _terminate)
     try:

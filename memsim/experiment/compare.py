@@ -494,7 +494,8 @@ def execute(tasks: Sequence[Task], *, workers: int | None = None, cache: RunCach
                         cache.put_text(doc["key"], text)
                     except OSError as exc:
                         # Keep running: the results stay in memory and are saved at the end.
-                        cache_error = f"cache entries could not be written ({exc.strerror or exc})"
+                        cache_error = (f"{cache.folder}: cache entries could not be written "
+                                       f"({exc.strerror or exc}); the finished runs were kept in memory")
                         cache = None
                 entries[doc["key"]] = doc
             bar.update(1)
