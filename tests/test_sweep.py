@@ -1,5 +1,4 @@
 """Sweeps: the sweep file, expansion, seeds, cache and resume, failures, atomic files, statistics."""
-import json
 import os
 import signal
 import subprocess
@@ -362,14 +361,14 @@ def test_write_frame_failure_mid_write_leaves_old_file(tmp_path, monkeypatch):
 
 def test_cache_entry_written_atomically(tmp_path, monkeypatch):
     c = RunCache(tmp_path)
-    c.put_text("k", json.dumps({"key": "k", "summary": {"x": 1}, "tables": {}}))
+    c.put_text("k", cache_mod.entry_text("k", {}, {"x": 1}, {}, 0.0))
 
     def boom(src, dst):
         raise OSError("crash before rename")
 
     monkeypatch.setattr(os, "replace", boom)
     with pytest.raises(OSError):
-        c.put_text("k", json.dumps({"key": "k", "summary": {"x": 2}, "tables": {}}))
+        c.put_text("k", cache_mod.entry_text("k", {}, {"x": 2}, {}, 0.0))
     monkeypatch.undo()
     assert c.get("k")["summary"] == {"x": 1}
     assert [p.name for p in tmp_path.iterdir()] == ["k.json"]

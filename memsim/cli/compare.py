@@ -9,7 +9,7 @@ from pathlib import Path
 import click
 import pandas as pd
 
-from memsim.cli.common import SET_HELP, fmt, overrides
+from memsim.cli.common import REPLACE_HELP, SET_HELP, fmt, overrides
 
 VARY_HELP = ("One setting: KEY=VALUE[,KEY=VALUE...], optionally 'LABEL: ...' before it; or KEY=V1,V2,... "
              "for one setting per value (repeatable; the settings of every --vary are compared).")
@@ -35,10 +35,11 @@ def _terminate(signum, frame):
               help="Local processes (default: one per core; 1 = run in this process).")
 @click.option("--out", type=click.Path(file_okay=False),
               help="Results folder (default results/<run.name>_compare).")
+@click.option("--replace", is_flag=True, help=REPLACE_HELP)
 @click.option("--quiet", is_flag=True, help="No progress bar.")
 def compare_cmd(config: str, vary: tuple[str, ...], workloads: tuple[str, ...], sets: tuple[str, ...],
                 seeds: int, metrics: tuple[str, ...], workers: int | None, out: str | None,
-                quiet: bool) -> None:
+                replace: bool, quiet: bool) -> None:
     """Run CONFIG's workload under each --vary setting and print them side by side.
 
     Writes compare.csv (one row per workload and setting: mean over seeds and
@@ -46,6 +47,8 @@ def compare_cmd(config: str, vary: tuple[str, ...], workloads: tuple[str, ...], 
     """
     from memsim.errors import ConfigError
     from memsim.experiment.compare import make_compare_spec, run_compare
+    from memsim.experiment.outputs import claim, fingerprint
+    from memsim.metrics.files import SaveFailed, check_folder, save_or_rescue
     from memsim.report.compare_plot import save_compare_figure
 
     if not Path(config).is_file():
@@ -55,6 +58,12 @@ def compare_cmd(config: str, vary: tuple[str, ...], workloads: tuple[str, ...], 
                              workloads=list(workloads) if workloads else None,
                              metrics=list(metrics) or None, source="--vary", fixed_origin="--set")
     folder = Path(out) if out else Path("results") / spec.name
+    # What the comparison is, wherever it is run from: the config by its absolute path.
+    described = {**{k: v for k, v in spec.to_json().items() if k != "name"}, "base": str(Path(config).resolve())}
+    where = "--out" if out else f"{config}: run.name"
+    owned = claim(folder, "compare", fingerprint(comparison=described), where=where, replace=replace,
+                  source=config, hint="--out FOLDER for a folder of its own")
+    check_folder(owned.folder / "cache", where)
     t0 = time.perf_counter()
     old = signal.signal(signal.SIGTERM, _terminate)
     try:
@@ -62,7 +71,14 @@ def compare_cmd(config: str, vary: tuple[str, ...], workloads: tuple[str, ...], 
                           where="--metric")
     finally:
         signal.signal(signal.SIGTERM, old)
-    png = save_compare_figure(res.table, folder)
+    if res.folder is not None and not res.save_error:
+        owned.mark(res.folder)
+    error = res.save_error
+    png = None
+    if res.folder is not None:
+        where, err = save_or_rescue(lambda f: save_compare_figure(res.table, f), res.folder, spec.name)
+        png = None if where is None else where / "compare.png"   # the stem save_compare_figure uses
+        error = "; ".join(e for e in (error, err) if e)
     n_set, n_wl, n_seed = len(spec.settings), len(spec.workloads), len(spec.seeds)
     click.echo(f"compare {spec.name}: {n_set} settings x {n_wl} workload{'s' if n_wl > 1 else ''} x "
                f"{n_seed} seed{'s' if n_seed > 1 else ''} = {len(res.runs)} runs: "
@@ -75,7 +91,10 @@ def compare_cmd(config: str, vary: tuple[str, ...], workloads: tuple[str, ...], 
         click.echo("")
         for line in side_by_side(res.table, wl.label, res.metrics, spec.level):
             click.echo(line)
-    click.echo(f"\nresults: {folder}  (compare.csv, {png.name})")
+    if res.folder is not None:
+        click.echo(f"\nresults: {res.folder}  (compare.csv" + (f", {png.name}" if png else "") + ")")
+    if error:
+        raise SaveFailed(error)
 
 
 def side_by_side(table: pd.DataFrame, workload: str, metrics: list[str], level: float = 0.95) -> list[str]:

@@ -5,7 +5,15 @@ from pathlib import Path
 
 import click
 
-from memsim.cli.common import FULL_HELP, SET_HELP, overrides, print_summary
+from memsim.cli.common import (
+    FULL_HELP,
+    REPLACE_HELP,
+    SET_HELP,
+    prepare_output,
+    print_summary,
+    report_saved,
+    save_results,
+)
 
 
 @click.command(name="lifetime")
@@ -15,22 +23,29 @@ from memsim.cli.common import FULL_HELP, SET_HELP, overrides, print_summary
               help="User write rate, GB/s (default lifetime.write_rate_gbps, or a short timing run).")
 @click.option("--method", type=click.Choice(["both", "extrapolated", "run_to_failure"]),
               help="Lifetime method (default lifetime.method).")
-@click.option("--out", type=click.Path(file_okay=False), help="Results folder (default results/<name>).")
+@click.option("--out", type=click.Path(file_okay=False),
+              help="Results folder (default <run.out_dir>/<run.name>/lifetime).")
+@click.option("--replace", is_flag=True, help=REPLACE_HELP)
 @click.option("--full", is_flag=True, help=FULL_HELP)
 def lifetime_cmd(config: str, sets: tuple[str, ...], write_rate: float | None, method: str | None,
-                 out: str | None, full: bool) -> None:
+                 out: str | None, replace: bool, full: bool) -> None:
     """Estimate how long the memory of CONFIG (TOML) lasts; print the summary."""
     from memsim.experiment.lifetime import lifetime
     from memsim.report.wear_plot import save_wear_figure
 
-    result = lifetime(config, write_rate_gbps=write_rate, method=method, overrides=overrides(sets))
+    cfg, claim = prepare_output(config, sets, out, replace, "lifetime", write_rate_gbps=write_rate,
+                                method=method)
+    result = lifetime(cfg, write_rate_gbps=write_rate, method=method)
+
+    def save(folder: Path) -> None:
+        result.save(folder)
+        save_wear_figure(result, folder)
+
+    saved, err = save_results(claim, save, cfg.run.name)
     run = result.config["run"]
-    folder = Path(out) if out else Path(run["out_dir"]) / run["name"]
-    result.save(folder)
-    save_wear_figure(result, folder)
     print_summary(result.summary, f"lifetime {run['name']} (seed {result.seed}, {result.wall_s:.2f} s wall)",
                   result.config, full)
-    click.echo(f"results: {folder}")
+    report_saved(saved, err)
 
 
 COMMANDS = [lifetime_cmd]

@@ -1,29 +1,37 @@
 """``memsim run`` and ``memsim list``."""
 from __future__ import annotations
 
-from pathlib import Path
-
 import click
 
-from memsim.cli.common import FULL_HELP, SET_HELP, overrides, print_summary
+from memsim.cli.common import (
+    FULL_HELP,
+    REPLACE_HELP,
+    SET_HELP,
+    prepare_output,
+    print_summary,
+    report_saved,
+    save_results,
+)
 
 
 @click.command()
 @click.argument("config", type=click.Path(dir_okay=False))
 @click.option("--set", "sets", multiple=True, metavar="KEY=VALUE", help=SET_HELP)
-@click.option("--out", type=click.Path(file_okay=False), help="Results folder (default results/<name>).")
+@click.option("--out", type=click.Path(file_okay=False),
+              help="Results folder (default <run.out_dir>/<run.name>/run).")
+@click.option("--replace", is_flag=True, help=REPLACE_HELP)
 @click.option("--full", is_flag=True, help=FULL_HELP)
-def run(config: str, sets: tuple[str, ...], out: str | None, full: bool) -> None:
+def run(config: str, sets: tuple[str, ...], out: str | None, replace: bool, full: bool) -> None:
     """Run one CONFIG (TOML) and print its summary."""
     from memsim.experiment.run import simulate
 
-    result = simulate(config, overrides=overrides(sets))
-    folder = Path(out) if out else Path(result.config["run"]["out_dir"]) / result.config["run"]["name"]
-    result.save(folder)
+    cfg, claim = prepare_output(config, sets, out, replace, "run")
+    result = simulate(cfg)
+    saved, err = save_results(claim, result.save, cfg.run.name)
     print_summary(result.summary, f"run {result.config['run']['name']} "
                                   f"(seed {result.seed}, {result.wall_s:.2f} s wall)",
                   result.config, full)
-    click.echo(f"results: {folder}")
+    report_saved(saved, err)
 
 
 @click.command(name="list")

@@ -28,15 +28,30 @@ def _terminate(signum, frame):
 @click.option("--scheduler", metavar="ADDRESS",
               help="Run on the Dask cluster whose scheduler listens at ADDRESS (tcp://HOST:PORT).")
 @click.option("--out", type=click.Path(file_okay=False), help="Results folder (default results/<sweep name>).")
+@click.option("--replace", is_flag=True,
+              help="Use the results folder even if another sweep file's results are in it.")
 @click.option("--quiet", is_flag=True, help="No progress bar.")
-def sweep_cmd(file: str, workers: int | None, scheduler: str | None, out: str | None, quiet: bool) -> None:
-    """Run every point x seed of the sweep FILE (TOML); finished runs are cached and reused."""
+def sweep_cmd(file: str, workers: int | None, scheduler: str | None, out: str | None, replace: bool,
+              quiet: bool) -> None:
+    """Run every point x seed of the sweep FILE (TOML); finished runs are cached and reused.
+
+    The folder belongs to the sweep file: running the same file again (its
+    grid grown, say) reuses the cached runs; another file whose results would
+    go to the same folder is refused unless --replace.
+    """
+    from memsim.experiment.outputs import claim, fingerprint
     from memsim.experiment.sweep import load_sweep, run_sweep
+    from memsim.metrics.files import SaveFailed, check_folder
 
     if not Path(file).is_file():
         raise ConfigError(file, "no such file", "a path to a sweep file (TOML)")
     spec = load_sweep(file)
     folder = Path(out) if out else Path("results") / spec.name
+    source = str(Path(file).resolve())
+    where = "--out" if out else f"{file}: sweep.name"
+    owned = claim(folder, "sweep", fingerprint(sweep_file=source), where=where, replace=replace, source=file,
+                  hint="set sweep.name (or --out) for a folder of its own")
+    check_folder(owned.folder / "cache", where)
     t0 = time.perf_counter()
     old = signal.signal(signal.SIGTERM, _terminate)
     try:
@@ -44,12 +59,17 @@ def sweep_cmd(file: str, workers: int | None, scheduler: str | None, out: str | 
                         progress=False if quiet else None)
     finally:
         signal.signal(signal.SIGTERM, old)
+    if res.folder is not None and not res.save_error:
+        owned.mark(res.folder)
     points = res.runs["point"].nunique()
     click.echo(f"sweep {spec.name}: {len(res.runs)} runs ({points} points x {len(spec.seeds)} seeds) "
                f"on {res.executor}: {res.ran} ran, {res.reused} from cache, {res.failed} failed, "
                f"{time.perf_counter() - t0:.1f} s")
     _print_means(res, spec.varied)
-    click.echo(f"results: {folder}  (runs.csv, point_stats.csv; figures: memsim plot {folder})")
+    if res.folder is not None:
+        click.echo(f"results: {res.folder}  (runs.csv, point_stats.csv; figures: memsim plot {res.folder})")
+    if res.save_error:
+        raise SaveFailed(res.save_error)
     if res.failed:
         first = res.runs.loc[res.runs["error"] != "", "error"].iloc[0]
         click.echo(f"error: {res.failed} of {len(res.runs)} runs failed; first: {first}", err=True)

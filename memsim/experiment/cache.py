@@ -4,7 +4,9 @@ One small JSON file per finished run (one point of a sweep with one seed),
 written atomically as soon as the run finishes.  A sweep that was killed
 finds the finished runs here and redoes only the others; a sweep whose grid
 grew finds the points it shares with the old grid.  Failed runs are not
-cached, so they are tried again.
+cached, so they are tried again.  Each entry carries a checksum of its
+content (strict JSON, ``null`` for NaN); an entry that does not match,
+edited by hand or damaged, is run again.
 
 The key hashes the resolved config (``RunConfig.model_dump()``, keys sorted),
 the memsim version, a digest of the model's source code and the content of
@@ -28,7 +30,7 @@ import numpy as np
 import pandas as pd
 
 from memsim import __version__
-from memsim.metrics.result import atomic_write_bytes, atomic_write_text
+from memsim.metrics.files import atomic_write_bytes, atomic_write_text, dumps, strict
 
 # Fields that place results but do not change them.
 _PLACEMENT = (("run", "name"), ("run", "out_dir"))
@@ -115,7 +117,9 @@ def entry_text(key: str, config: Mapping[str, Any], summary: Mapping[str, Any],
     """The JSON text of a cache entry for one finished run.
 
     Tables are stored column-wise (``{"columns": [...], "data": [[...], ...]}``)
-    so they read back into the same DataFrame.
+    so they read back into the same DataFrame.  The text is strict JSON
+    (``null`` for a value that is NaN or infinite) and carries a
+    ``checksum`` of everything else in it (:func:`entry_checksum`).
     """
     doc = {
         "key": key,
@@ -126,7 +130,20 @@ def entry_text(key: str, config: Mapping[str, Any], summary: Mapping[str, Any],
                           "data": t.astype(object).values.tolist()} for name, t in tables.items()},
         "wall_s": float(wall_s),
     }
-    return json.dumps(doc, default=_json_default)
+    body = strict(doc)
+    body["checksum"] = entry_checksum(body)
+    return dumps(body)
+
+
+def entry_checksum(entry: Mapping[str, Any]) -> str:
+    """SHA-256 over an entry's content (every field but ``checksum``), in canonical JSON.
+
+    Floats survive a JSON round trip exactly, so the checksum of an entry
+    read back equals the one written unless the file was changed.
+    """
+    body = {k: v for k, v in entry.items() if k != "checksum"}
+    text = json.dumps(body, sort_keys=True, separators=(",", ":"), allow_nan=False)
+    return hashlib.sha256(text.encode()).hexdigest()
 
 
 def table_from_entry(entry: Mapping[str, Any], name: str) -> pd.DataFrame | None:
@@ -148,22 +165,30 @@ class RunCache:
 
     def __init__(self, folder: str | Path) -> None:
         self.folder = Path(folder)
+        self.rejected = 0
 
     def path(self, key: str) -> Path:
         return self.folder / f"{key}.json"
 
     def get(self, key: str, tables: tuple[str, ...] = ()) -> dict[str, Any] | None:
-        """The entry for ``key`` if it exists, is readable and holds every table in ``tables``.
+        """The entry for ``key`` if it exists, is intact and holds every table in ``tables``.
 
-        An unreadable entry (e.g. from a disk that filled up) counts as missing
-        and is redone; atomic writes make this rare.
+        An unreadable entry (e.g. from a disk that filled up) or one whose
+        checksum does not match its content (edited by hand, damaged, or
+        written before entries had checksums) counts as missing and is redone;
+        such entries are counted in ``rejected``.
         """
         p = self.path(key)
         try:
             entry = json.loads(p.read_text())
-        except (FileNotFoundError, json.JSONDecodeError, UnicodeDecodeError):
+        except FileNotFoundError:
             return None
-        if entry.get("key") != key or "summary" not in entry:
+        except (OSError, ValueError):
+            self.rejected += 1
+            return None
+        if (not isinstance(entry, dict) or entry.get("key") != key or "summary" not in entry
+                or entry.get("checksum") != _checksum_or_none(entry)):
+            self.rejected += 1
             return None
         if any(name not in entry.get("tables", {}) for name in tables):
             return None
@@ -194,6 +219,13 @@ def write_frame(df: pd.DataFrame, folder: str | Path, stem: str, csv: bool = Tru
         paths.append(folder / f"{stem}.csv")
         atomic_write_text(paths[1], df.to_csv(index=False))
     return paths
+
+
+def _checksum_or_none(entry: Mapping[str, Any]) -> str | None:
+    try:
+        return entry_checksum(entry)
+    except (TypeError, ValueError):
+        return None
 
 
 def _json_default(obj: Any) -> Any:

@@ -49,7 +49,7 @@ from memsim.errors import ConfigError, UserError
 from memsim.experiment.cache import RunCache, config_key
 from memsim.experiment.executors import Task, make_executor
 from memsim.experiment.sweep import check_key, derive_seeds, flatten
-from memsim.metrics.result import atomic_write_text
+from memsim.metrics.files import atomic_write_text, dumps, save_or_rescue
 from memsim.metrics.stats import summarize
 
 # Shown by default, in this order, when the runs report them.
@@ -460,6 +460,7 @@ class Execution:
     ran: int
     reused: int
     executor: str
+    cache_error: str = ""
 
 
 def execute(tasks: Sequence[Task], *, workers: int | None = None, cache: RunCache | None = None,
@@ -479,6 +480,7 @@ def execute(tasks: Sequence[Task], *, workers: int | None = None, cache: RunCach
     failures: dict[str, dict[str, Any]] = {}
     n = workers if workers is not None else min(os.cpu_count() or 1, max(1, len(todo)))
     executor = make_executor(n) if todo else None
+    cache_error = ""
     bar = tqdm(total=len(todo) + reused, initial=reused, desc=desc, unit="run",
                disable=None if progress is None else not progress, dynamic_ncols=True)
     try:
@@ -488,7 +490,13 @@ def execute(tasks: Sequence[Task], *, workers: int | None = None, cache: RunCach
                 failures[doc["key"]] = doc
             else:
                 if cache is not None:
-                    cache.put_text(doc["key"], text)
+                    try:
+                        cache.put_text(doc["key"], text)
+                    except OSError as exc:
+                        # Keep running: the results stay in memory and are saved at the end.
+                        cache_error = (f"{cache.folder}: cache entries could not be written "
+                                       f"({exc.strerror or exc}); the finished runs were kept in memory")
+                        cache = None
                 entries[doc["key"]] = doc
             bar.update(1)
     finally:
@@ -496,7 +504,7 @@ def execute(tasks: Sequence[Task], *, workers: int | None = None, cache: RunCach
         if executor is not None:
             executor.close()
     return Execution(entries, failures, len(todo) - len(failures), reused,
-                     executor.name if executor is not None else "the cache")
+                     executor.name if executor is not None else "the cache", cache_error)
 
 
 @dataclass
@@ -518,6 +526,7 @@ class CompareOutcome:
     ran: int = 0
     reused: int = 0
     executor: str = "the cache"
+    save_error: str = ""                # why the results are not (all) where asked, if so
 
 
 def choose_metrics(summaries: Sequence[Mapping[str, Any]], asked: Sequence[str] | None,
@@ -600,19 +609,21 @@ def run_compare(spec: CompareSpec, *, workers: int | None = None, out: str | Pat
     outcome = assemble(spec, rows, tasks, done, where)
     if folder is not None:
         outcome.folder = folder
-        save(outcome)
+        saved, err = save_or_rescue(lambda f: save(outcome, f), folder, spec.name)
+        outcome.folder = saved
+        outcome.save_error = "; ".join(e for e in (done.cache_error, err) if e)
     return outcome
 
 
-def save(outcome: CompareOutcome) -> list[Path]:
-    """Write the comparison's tables and description into its folder, each file atomically."""
-    folder = outcome.folder
+def save(outcome: CompareOutcome, folder: Path | None = None) -> list[Path]:
+    """Write the comparison's tables and description into ``folder`` (default its own), atomically."""
+    folder = folder or outcome.folder
     assert folder is not None
     paths = [folder / "compare.csv", folder / "compare_runs.csv", folder / "compare.json"]
     atomic_write_text(paths[0], outcome.table.to_csv(index=False))
     atomic_write_text(paths[1], outcome.runs.to_csv(index=False))
     doc = {**outcome.spec.to_json(), "metrics": outcome.metrics, "runs": len(outcome.runs)}
-    atomic_write_text(paths[2], json.dumps(doc, indent=2, default=str))
+    atomic_write_text(paths[2], dumps(doc, indent=2, default=str))
     return paths
 
 

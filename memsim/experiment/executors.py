@@ -73,17 +73,45 @@ class InProcess:
         pass
 
 
+PARENT_POLL_S = 0.25
+
+
+def watch_parent(parent_pid: int, poll_s: float = PARENT_POLL_S) -> None:
+    """Pool-worker initializer: end this worker soon after its parent process dies.
+
+    A parent killed without a chance to shut its pool down (``kill -9``, the
+    out-of-memory killer) would otherwise leave its workers blocked on their
+    task pipe for ever.  A daemon thread compares ``os.getppid()`` with the
+    parent's pid (an orphan is adopted by another process) and exits the
+    worker at once; this works on every POSIX system, whatever the worker is
+    doing in its main thread.
+    """
+    import threading
+    import time
+
+    def watch() -> None:
+        while os.getppid() == parent_pid:
+            time.sleep(poll_s)
+        os._exit(70)  # no cleanup wanted: the parent that would collect results is gone
+
+    if os.getppid() != parent_pid:
+        os._exit(70)
+    threading.Thread(target=watch, name="memsim-parent-watch", daemon=True).start()
+
+
 class LocalPool:
     """A pool of ``workers`` local processes (concurrent.futures).
 
     At most ``2 * workers`` tasks are queued at a time so that an interrupted
-    sweep stops soon and cancels nothing that has started.
+    sweep stops soon and cancels nothing that has started.  Workers exit on
+    their own if this process dies (:func:`watch_parent`).
     """
 
     def __init__(self, workers: int) -> None:
         self.workers = workers
         self.name = f"{workers} local processes"
-        self._pool = ProcessPoolExecutor(max_workers=workers)
+        self._pool = ProcessPoolExecutor(max_workers=workers, initializer=watch_parent,
+                                         initargs=(os.getpid(),))
 
     def run(self, tasks: Sequence[Task]) -> Iterator[tuple[int, str]]:
         pending: dict[Future, int] = {}

@@ -1,6 +1,8 @@
 """Run one config: build the parts from the config, run the engines, summarize."""
 from __future__ import annotations
 
+import copy
+import gc
 import time
 from collections.abc import Mapping
 from pathlib import Path
@@ -15,7 +17,8 @@ from memsim.engine.timing import TimingEngine, TimingTotals
 from memsim.experiment.build import build_path, build_source, check_names, source_fields
 from memsim.experiment.lifetime import lifetime_fields
 from memsim.metrics.result import RunResult, latency_histogram, latency_stats
-from memsim.policy.refresh import plan_refresh
+from memsim.policy.refresh import check_refresh_load, plan_refresh
+from memsim.policy.write.bits import popcount_rows
 from memsim.policy.writepath import WritePath
 from memsim.tech.technology import summary_fields as technology_summary
 
@@ -104,6 +107,31 @@ def summarize(cfg: RunConfig, tot: TimingTotals, path: WritePath) -> dict[str, A
     return s
 
 
+def refresh_demand(engine: TimingEngine, sample: int = 4096) -> tuple[np.ndarray, float]:
+    """Modeled lines per bank and the mean time a refresh holds a bank, ns, before the run.
+
+    The same service time as :meth:`TimingEngine.refresh_cost` (read, then
+    reprogram the drifting cells) over the lines' initial content, without
+    its side effects: a sample of at most ``sample`` lines, and a copy of the
+    multi-level writer with its own random stream so the run's draws stay
+    as they are.
+    """
+    path, cell = engine.path, engine.cell
+    n = path.n_physical
+    _, bank, _ = engine.amap.locate(np.arange(n))
+    lines_per_bank = np.bincount(bank, minlength=engine.amap.total_banks)
+    lines = np.linspace(0, n - 1, min(n, sample)).astype(np.int64)
+    stored = path.stored[lines]
+    if path.mlc is not None:
+        mlc = copy.copy(path.mlc)
+        mlc.rng = np.random.default_rng(0)
+        program = mlc.cost(np.zeros_like(stored), stored).program_ns
+    else:
+        n_reset = engine.line_bits - popcount_rows(stored)
+        program = cell.program_ns(np.zeros_like(n_reset), n_reset, engine.round_budget_ua)
+    return lines_per_bank, float(np.mean(program)) + cell.read_ns
+
+
 def refresh_fields(tot: TimingTotals, agent: RefreshAgent, summary: dict[str, Any]) -> dict[str, Any]:
     """Refresh cost and error keys of the summary."""
     plan = agent.plan
@@ -146,13 +174,31 @@ def simulate(config: str | Path | Mapping | RunConfig | None = None, **overrides
     """
     extra = overrides.pop("overrides", None) or {}
     cfg = resolve(config, {**extra, **overrides})
+    try:
+        return _simulate(cfg)
+    finally:
+        # The simpy engine and its processes refer to each other, and that cycle
+        # holds the write path's per-cell wear (over 100 MB for a large array)
+        # until a full collection, which gc's allocation-count trigger seldom
+        # runs: a process doing many runs would grow by a run's arrays per run.
+        gc.collect()
+
+
+def _simulate(cfg: RunConfig) -> RunResult:
     t0 = time.perf_counter()
     rng = np.random.default_rng(cfg.run.seed)
     path = build_path(cfg, rng)
     source = build_source(cfg, rng)
-    plan = plan_refresh(cfg)
-    engine = TimingEngine(cfg, source, path, plan, np.random.default_rng([cfg.run.seed, 1]))
-    tot = engine.run()
+    try:
+        plan = plan_refresh(cfg)
+        engine = TimingEngine(cfg, source, path, plan, np.random.default_rng([cfg.run.seed, 1]))
+        if plan.active:
+            lines_per_bank, service = refresh_demand(engine)
+            check_refresh_load(plan, lines_per_bank, service)
+        tot = engine.run()
+    finally:
+        if source.reader is not None:
+            source.reader.close()       # stop the trace's read-ahead thread on every path
     summary = summarize(cfg, tot, path)
     summary.update(refresh_fields(tot, engine.agent, summary))
     summary.update(erase_fields(engine, summary))

@@ -48,7 +48,7 @@ from memsim.config.load import read_toml
 from memsim.errors import ConfigError, UserError
 from memsim.experiment.cache import RunCache, config_key, table_from_entry, write_frame
 from memsim.experiment.executors import Task, error_line, make_executor
-from memsim.metrics.result import atomic_write_text
+from memsim.metrics.files import atomic_write_text, dumps, save_or_rescue
 from memsim.metrics.stats import summarize
 
 SECTIONS = ("sweep", "fixed", "grid", "zipped")
@@ -273,6 +273,7 @@ class SweepOutcome:
     failed: int
     tracebacks: list[str] = field(default_factory=list)
     executor: str = "the cache"
+    save_error: str = ""                # why the results are not (all) where asked, if so
 
 
 def plan(spec: SweepSpec) -> tuple[list[dict[str, Any]], list[Task | None], list[str]]:
@@ -346,6 +347,7 @@ def run_sweep(spec: SweepSpec, *, workers: int | None = None, scheduler: str | N
     todo_list = list(todo.values())
     rows_of = pd.Series([t.key for t in tasks if t is not None]).value_counts().to_dict()
     executor = make_executor(workers, scheduler) if todo_list else None
+    cache_error = ""
     try:
         for _, text in (executor.run(todo_list) if executor else ()):
             doc = json.loads(text)
@@ -354,7 +356,13 @@ def run_sweep(spec: SweepSpec, *, workers: int | None = None, scheduler: str | N
                 bar.set_postfix(failed=len(failures))
             else:
                 if cache is not None:
-                    cache.put_text(doc["key"], text)
+                    try:
+                        cache.put_text(doc["key"], text)
+                    except OSError as exc:
+                        # Keep running: the results stay in memory and are saved at the end.
+                        cache_error = (f"{cache.folder}: cache entries could not be written "
+                                       f"({exc.strerror or exc}); the finished runs were kept in memory")
+                        cache = None
                 entries[doc["key"]] = doc
             bar.update(rows_of[doc["key"]])
     finally:
@@ -372,7 +380,9 @@ def run_sweep(spec: SweepSpec, *, workers: int | None = None, scheduler: str | N
                            tracebacks=[d["traceback"] for d in failures.values() if d.get("traceback")],
                            executor=executor.name if executor is not None else "the cache")
     if folder is not None:
-        save(outcome, spec, metrics, level)
+        saved, err = save_or_rescue(lambda f: save(outcome, spec, metrics, level, f), folder, spec.name)
+        outcome.folder = saved
+        outcome.save_error = "; ".join(e for e in (cache_error, err) if e)
     return outcome
 
 
@@ -394,7 +404,8 @@ def assemble(spec: SweepSpec, rows: list[dict], tasks: list[Task | None], errors
     for row, s, err, t in zip(rows, summaries, errors, tasks):
         r = dict(row)
         for m in metrics:
-            r[m] = s.get(m, np.nan) if s else np.nan
+            v = s.get(m) if s else None
+            r[m] = np.nan if v is None else v     # null in a cache entry: no meaningful value
         r["error"] = err
         r["key"] = t.key if t is not None else ""
         table.append(r)
@@ -450,9 +461,10 @@ def gather_tables(spec: SweepSpec, rows: list[dict], tasks: list[Task | None],
     return out
 
 
-def save(outcome: SweepOutcome, spec: SweepSpec, metrics: list[str], level: float = 0.95) -> None:
-    """Write the sweep's tables and description into its folder, each file atomically."""
-    folder = outcome.folder
+def save(outcome: SweepOutcome, spec: SweepSpec, metrics: list[str], level: float = 0.95,
+         folder: Path | None = None) -> None:
+    """Write the sweep's tables and description into ``folder`` (default its own), each file atomically."""
+    folder = folder or outcome.folder
     assert folder is not None
     write_frame(outcome.runs, folder, "runs")
     write_frame(outcome.stats, folder, "point_stats")
@@ -460,7 +472,7 @@ def save(outcome: SweepOutcome, spec: SweepSpec, metrics: list[str], level: floa
         write_frame(df, folder / "tables", name)
     doc = {**spec.to_json(), "metrics": metrics, "level": level, "runs": len(outcome.runs),
            "failed": outcome.failed}
-    atomic_write_text(folder / "sweep.json", json.dumps(doc, indent=2))
+    atomic_write_text(folder / "sweep.json", dumps(doc, indent=2, default=str))
     log = folder / "errors.txt"
     if outcome.tracebacks:
         atomic_write_text(log, "\n".join(outcome.tracebacks))

@@ -39,6 +39,7 @@ def make_trace(spec: str | os.PathLike[str] | Mapping, out: str | os.PathLike[st
     from memsim.config import load_config
     from memsim.config.schema import WorkloadSection
     from memsim.experiment.build import build_source
+    from memsim.metrics.files import check_folder
     from memsim.workload.trace import write_trace
 
     cfg = load_config(spec, dict(overrides or {}))
@@ -58,6 +59,9 @@ def make_trace(spec: str | os.PathLike[str] | Mapping, out: str | os.PathLike[st
                         ", ".join(TRACE_SUFFIXES) + " (the form follows the suffix)")
     if not path.parent.is_dir():
         raise UserError(str(out), f"no folder {str(path.parent)!r}", "a path in an existing folder")
+    if path.is_dir():
+        raise UserError(str(out), "a folder", "the path of a trace file to write")
+    check_folder(path.parent, str(out))
     name = Path(spec).name if isinstance(spec, (str, os.PathLike)) else "a config"
     note = (f"made by memsim trace make from {name}: pattern {w.pattern}, arrival "
             f"{w.arrival}, run.seed {cfg.run.seed}, line_bytes {cfg.array.line_bytes}; "
@@ -84,8 +88,8 @@ def trace_summary(file: str | os.PathLike[str], *, skip_bad: bool = False, line_
     """
     from memsim.workload.trace import TraceReader, trace_info
 
-    reader = TraceReader(file, skip_bad=skip_bad, line_bytes=line_bytes, footprint=footprint)
-    info, hist = trace_info(reader)
+    with TraceReader(file, skip_bad=skip_bad, line_bytes=line_bytes, footprint=footprint) as reader:
+        info, hist = trace_info(reader)
     return {**info, "kind": reader.kind, "columns": list(reader.columns), "has_data": bool(reader.has_data),
             "line_bytes": reader.line_bytes, "skip_bad": reader.skip_bad,
             "bad_examples": list(reader.bad_examples), "reuse_histogram": hist}

@@ -1,9 +1,6 @@
 """RunResult: the summary (flat dict, units in names), tables and provenance."""
 from __future__ import annotations
 
-import json
-import os
-import tempfile
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -11,25 +8,10 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from memsim.metrics.files import atomic_write_bytes, atomic_write_text, dumps
 from memsim.workload.chunk import READ, WRITE
 
-
-def atomic_write_bytes(path: Path, data: bytes) -> None:
-    """Write ``data`` to ``path`` through a temp file and an atomic rename."""
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            fh.write(data)
-        os.replace(tmp, path)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
-
-
-def atomic_write_text(path: Path, text: str) -> None:
-    atomic_write_bytes(path, text.encode())
+__all__ = ["RunResult", "atomic_write_bytes", "atomic_write_text", "latency_histogram", "latency_stats"]
 
 
 def latency_stats(lat: np.ndarray, prefix: str) -> dict[str, float]:
@@ -88,21 +70,15 @@ class RunResult:
         return pd.DataFrame([self.summary])
 
     def save(self, folder: str | Path) -> Path:
-        """Write summary.json, summary.csv and each table as CSV, atomically."""
+        """Write summary.json (strict JSON: null for NaN/infinity), summary.csv and each
+        table as CSV, each file atomically."""
         folder = Path(folder)
         folder.mkdir(parents=True, exist_ok=True)
         doc = {"summary": self.summary, "config": self.config, "seed": self.seed,
                "version": self.version, "wall_s": self.wall_s}
-        atomic_write_text(folder / "summary.json", json.dumps(doc, indent=2, default=_json_default))
+        atomic_write_text(folder / "summary.json", dumps(doc, indent=2))
         atomic_write_text(folder / "summary.csv", self.to_frame().to_csv(index=False))
         for name, table in self.tables.items():
             atomic_write_text(folder / f"{name}.csv", table.to_csv(index=False))
         return folder
 
-
-def _json_default(obj: Any) -> Any:
-    if isinstance(obj, (np.integer,)):
-        return int(obj)
-    if isinstance(obj, (np.floating,)):
-        return float(obj)
-    raise TypeError(f"not JSON serializable: {type(obj)}")

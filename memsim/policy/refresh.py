@@ -24,6 +24,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from memsim.errors import ConfigError
 from memsim.tech.drift import error_table, refresh_age
 from memsim.tech.models import drift_params, mlc_cell
 from memsim.units import GIB, NS_PER_S
@@ -111,3 +112,38 @@ def plan_refresh(cfg) -> RefreshPlan:
     return RefreshPlan(r.policy, ra.age_s, ra.status, interval, scale, threshold, scan,
                        round(n_cells * cell.bits_stored), r.scrub_errors, r.start, np.log10(ages),
                        tab["rber_line"].to_numpy(), tab["p_uncorrectable"].to_numpy())
+
+
+def refresh_load(plan: RefreshPlan, lines_per_bank: np.ndarray, service_ns: float) -> float:
+    """Share of the busiest bank's time that refresh alone needs (0 for no scanning policy).
+
+    Each of a bank's modeled lines is refreshed once per ``threshold_ns`` of
+    simulated time and each refresh holds the bank ``service_ns``.  By the
+    time scaling above this equals the device's own figure, device lines
+    per bank x service time / refresh interval, whatever ``array.lines`` is.
+    """
+    if not plan.active or not math.isfinite(plan.threshold_ns) or plan.threshold_ns <= 0:
+        return 0.0
+    return float(np.max(lines_per_bank, initial=0)) * service_ns / plan.threshold_ns
+
+
+def check_refresh_load(plan: RefreshPlan, lines_per_bank: np.ndarray, service_ns: float) -> float:
+    """Raise ConfigError if refresh alone needs a bank's whole time; return the load.
+
+    At a load of 1 or more the refresh backlog grows without end: lines
+    outlive their refresh age, and since refresh outranks writes the run
+    need not end at all.  No modeled result would mean anything.
+    """
+    load = refresh_load(plan, lines_per_bank, service_ns)
+    if load >= 1.0:
+        per_bank = float(np.max(lines_per_bank)) * plan.scale
+        longer = ("a longer refresh.interval_s" if plan.policy == "periodic" else
+                  "a longer refresh age (refresh.correctable_bits, refresh.max_fail_prob)")
+        raise ConfigError(
+            "refresh.policy",
+            f"'{plan.policy}' needing {load:.2f} times a bank's time for refresh alone "
+            f"({per_bank:,.0f} device lines per bank, each refreshed every {plan.interval_s:,.4g} s "
+            f"at {service_ns:,.0f} ns a refresh)",
+            f"a refresh load below 1: more banks (array.banks, array.channels), less capacity "
+            f"(array.capacity_gib), {longer}, or refresh.policy 'none' or 'scrub'")
+    return load

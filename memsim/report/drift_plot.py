@@ -6,15 +6,17 @@ Takes the table made by :func:`memsim.tech.drift.error_table`.
 
 from __future__ import annotations
 
+import io
 import math
 import os
 import re
-import tempfile
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
 from matplotlib.figure import Figure
+
+from memsim.metrics.files import atomic_write_bytes
 
 _LEVEL_COL = re.compile(r"^rber_level_(\d+)$")
 
@@ -88,15 +90,8 @@ def plot_rber(
     """Draw :func:`rber_figure` and save it to ``path`` (format from the
     suffix, written to a temp file then renamed so a crash leaves no half file)."""
     out = Path(path)
-    out.parent.mkdir(parents=True, exist_ok=True)
     fig = rber_figure(table, ecc_limit, refresh_age_s, subtitle)
-    fd, tmp = tempfile.mkstemp(dir=out.parent, prefix=f".{out.stem}.", suffix=out.suffix)
-    try:
-        with os.fdopen(fd, "wb") as fh:
-            fig.savefig(fh, format=out.suffix.lstrip(".") or "png", dpi=120)
-        os.replace(tmp, out)
-    except BaseException:
-        if os.path.exists(tmp):
-            os.unlink(tmp)
-        raise
+    buf = io.BytesIO()
+    fig.savefig(buf, format=out.suffix.lstrip(".") or "png", dpi=120)
+    atomic_write_bytes(out, buf.getvalue())
     return out

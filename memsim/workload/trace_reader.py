@@ -13,12 +13,13 @@ import gzip
 import os
 import queue
 import threading
+import weakref
 import zlib
-from collections.abc import Callable, Iterator
+from collections.abc import Callable, Generator, Iterator
 from contextlib import closing
 from functools import partial
 from pathlib import Path
-from typing import BinaryIO
+from typing import BinaryIO, Self
 
 import numpy as np
 import pyarrow as pa
@@ -49,12 +50,19 @@ def _read_ahead(fh: BinaryIO, size: int, depth: int = 2) -> Iterator[bytes]:
 
     zlib and file reads release the GIL, so decompression overlaps parsing.
     At most ``depth`` blocks wait in the queue.  Ends after the empty read.
+
+    The helper never outlives the pass: closing or finalizing the generator
+    (normal end, an error, ``close()``, garbage collection) stops and joins
+    it.  It is not a daemon thread, so interpreter exit waits for it instead
+    of killing it in the middle of a read, and it gives up waiting on a full
+    queue once the main thread has finished, so that wait is short.
     """
     q: queue.Queue[tuple[bool, bytes | BaseException]] = queue.Queue(maxsize=depth)
     stop = threading.Event()
+    main = threading.main_thread()
 
     def put(item: tuple[bool, bytes | BaseException]) -> bool:
-        while not stop.is_set():
+        while not stop.is_set() and main.is_alive():
             try:
                 q.put(item, timeout=0.05)
                 return True
@@ -64,14 +72,14 @@ def _read_ahead(fh: BinaryIO, size: int, depth: int = 2) -> Iterator[bytes]:
 
     def work() -> None:
         try:
-            while True:
+            while not stop.is_set():
                 got = fh.read(size)
                 if not put((True, got)) or not got:
                     return
         except Exception as exc:  # noqa: BLE001 - handed to the consumer, which re-raises
             put((False, exc))
 
-    thread = threading.Thread(target=work, daemon=True)
+    thread = threading.Thread(target=work, name="memsim-trace-read-ahead", daemon=False)
     thread.start()
     try:
         while True:
@@ -157,6 +165,26 @@ class TraceReader:
         self.requests = 0
         self._columns: list[str] | None = None
         self._pass: Iterator[Chunk] | None = None
+        self._live: weakref.WeakSet[Generator[Chunk, None, None]] = weakref.WeakSet()
+
+    # -- life cycle: every pass owns a read-ahead thread until it ends or is closed
+    def close(self) -> None:
+        """End every unfinished pass (stopping and joining its read-ahead thread)."""
+        self._pass = None
+        for gen in list(self._live):
+            gen.close()
+
+    def __enter__(self) -> Self:
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()
+
+    def __del__(self) -> None:
+        try:
+            self.close()
+        except Exception:  # noqa: BLE001, S110 - nothing to report to during garbage collection
+            pass
 
     # -- shared
     @property
@@ -182,11 +210,17 @@ class TraceReader:
 
     def __iter__(self) -> Iterator[Chunk]:
         """A fresh pass over the file (counters restart)."""
+        gen = self._one_pass()
+        self._live.add(gen)
+        return gen
+
+    def _one_pass(self) -> Generator[Chunk, None, None]:
         self.bad_lines, self.bad_examples, self.rows, self.requests = 0, [], 0, 0
         it = self._iter_parquet() if self.kind == "parquet" else self._iter_text()
-        for ch in it:
-            self.requests += len(ch)
-            yield ch
+        with closing(it):
+            for ch in it:
+                self.requests += len(ch)
+                yield ch
 
     def __next__(self) -> Chunk:
         """Next chunk of one pass shared by all ``next()`` calls."""
