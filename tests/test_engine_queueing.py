@@ -1,5 +1,4 @@
 """The timing engine against closed-form queueing results."""
-import numpy as np
 import pytest
 from scipy import stats
 

@@ -94,8 +94,6 @@ def info_cmd(file: str, skip_bad: bool, line_bytes: int, footprint: int | None) 
     """Check the trace FILE and summarize it: mix, footprint, rate, reuse distances."""
     from memsim.experiment.tools import trace_summary
 
-    from memsim.experiment.tools import trace_summary
-
     info = trace_summary(file, skip_bad=skip_bad, line_bytes=line_bytes, footprint=footprint)
     _print_info(file, info)
 
