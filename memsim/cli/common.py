@@ -1,6 +1,9 @@
 """Helpers shared by the command modules: printing and --set parsing."""
 from __future__ import annotations
 
+from collections.abc import Iterator
+from contextlib import contextmanager
+
 import click
 
 SET_HELP = "Override a config field: section.key=value (repeatable)."
@@ -10,6 +13,19 @@ def overrides(sets: tuple[str, ...]) -> dict:
     from memsim.config import parse_assignment
 
     return dict(parse_assignment(s) for s in sets)
+
+
+@contextmanager
+def naming(config: str, sets: tuple[str, ...]) -> Iterator[None]:
+    """Put CONFIG (or the --set) in front of a config error raised with a bare key while running."""
+    from memsim.config.load import locate, parse_assignment
+    from memsim.errors import ConfigError
+
+    try:
+        yield
+    except ConfigError as exc:
+        keys = {parse_assignment(s)[0] for s in sets}
+        raise locate(exc, config, keys) from None
 
 
 def fmt(v) -> str:

@@ -5,7 +5,7 @@ from pathlib import Path
 
 import click
 
-from memsim.cli.common import SET_HELP, fmt, overrides, print_summary
+from memsim.cli.common import SET_HELP, naming, fmt, overrides, print_summary
 
 
 @click.command()
@@ -16,7 +16,8 @@ def drift(config: str, sets: tuple[str, ...], out: str | None) -> None:
     """Print the error-rate table and refresh age of CONFIG's cells (no workload run)."""
     from memsim.experiment.drift import drift_report, save_drift_figure
 
-    result = drift_report(config, overrides=overrides(sets))
+    with naming(config, sets):
+        result = drift_report(config, overrides=overrides(sets))
     run = result.config["run"]
     folder = Path(out) if out else Path(run["out_dir"]) / run["name"]
     result.save(folder)

@@ -5,7 +5,7 @@ from pathlib import Path
 
 import click
 
-from memsim.cli.common import SET_HELP, overrides, print_summary
+from memsim.cli.common import SET_HELP, naming, overrides, print_summary
 
 
 @click.command(name="lifetime")
@@ -22,7 +22,8 @@ def lifetime_cmd(config: str, sets: tuple[str, ...], write_rate: float | None, m
     from memsim.experiment.lifetime import lifetime
     from memsim.report.wear_plot import save_wear_figure
 
-    result = lifetime(config, write_rate_gbps=write_rate, method=method, overrides=overrides(sets))
+    with naming(config, sets):
+        result = lifetime(config, write_rate_gbps=write_rate, method=method, overrides=overrides(sets))
     run = result.config["run"]
     folder = Path(out) if out else Path(run["out_dir"]) / run["name"]
     result.save(folder)

@@ -5,7 +5,7 @@ from pathlib import Path
 
 import click
 
-from memsim.cli.common import SET_HELP, overrides, print_summary
+from memsim.cli.common import SET_HELP, naming, overrides, print_summary
 
 
 @click.command()
@@ -16,7 +16,8 @@ def run(config: str, sets: tuple[str, ...], out: str | None) -> None:
     """Run one CONFIG (TOML) and print its summary."""
     from memsim.experiment.run import simulate
 
-    result = simulate(config, overrides=overrides(sets))
+    with naming(config, sets):
+        result = simulate(config, overrides=overrides(sets))
     folder = Path(out) if out else Path(result.config["run"]["out_dir"]) / result.config["run"]["name"]
     result.save(folder)
     print_summary(result.summary, f"run {result.config['run']['name']} "

@@ -13,7 +13,7 @@ from typing import Any
 
 from pydantic import BaseModel, ValidationError
 
-from memsim.config.schema import RunConfig, load_preset, preset_names
+from memsim.config.schema import LIMIT_NOTES, RunConfig, load_preset, preset_names
 from memsim.errors import ConfigError
 
 
@@ -65,7 +65,42 @@ def _model_at(loc: tuple) -> type[BaseModel] | None:
     return model
 
 
-def _allowed(err: dict) -> str:
+def _key_of(loc: tuple) -> str:
+    """The dotted config key of an error location, without pydantic's union branch tags.
+
+    ``("cell", "pulse_ns", "constrained-float")`` -> ``cell.pulse_ns``;
+    ``("cell", "level_log10_ohm", 2)`` -> ``cell.level_log10_ohm[2]``.
+    """
+    model: Any = RunConfig
+    parts: list[str] = []
+    for i, part in enumerate(loc):
+        fields = getattr(model, "model_fields", None)
+        if fields is None or str(part) not in fields:
+            break
+        parts.append(str(part))
+        ann = fields[str(part)].annotation
+        model = ann if isinstance(ann, type) and issubclass(ann, BaseModel) else None
+        if model is None:
+            rest = loc[i + 1:]
+            if rest and isinstance(rest[0], int):
+                parts[-1] += f"[{rest[0]}]"
+            break
+    if not parts:
+        return ".".join(str(p) for p in loc) or "(top level)"
+    return ".".join(parts)
+
+
+# Pydantic's wording -> ours, after "Input should be " is cut off.
+_WORDING = (
+    ("a valid boolean", "true or false"),
+    ("a valid number", "a number (not true/false or a string)"),
+    ("a valid integer", "an integer"),
+    ("a valid string", "a string in quotes"),
+    ("a finite number", "a finite number (no nan or inf)"),
+)
+
+
+def _allowed(err: dict, key: str = "") -> str:
     kind = err["type"]
     if kind == "extra_forbidden":
         model = _model_at(err["loc"])
@@ -75,14 +110,48 @@ def _allowed(err: dict) -> str:
     for prefix in ("Input should be ", "String should "):
         if msg.startswith(prefix):
             msg = msg[len(prefix):]
+    for theirs, ours in _WORDING:
+        if msg.startswith(theirs):
+            msg = ours + msg[len(theirs):]
+            break
+    note = LIMIT_NOTES.get(key)
+    if note and kind in ("less_than_equal", "less_than"):
+        msg += f" ({note})"
     return msg
 
 
 def _where(source: str, key: str, overridden: set[str]) -> str:
     """Name the override when the bad key came from ``--set``, else the file."""
-    if any(o == key or o.startswith(key + ".") or key.startswith(o + ".") for o in overridden):
+    base = key.split("[", 1)[0]
+    if any(o == base or o.startswith(base + ".") or base.startswith(o + ".") for o in overridden):
         return f"--set {key}"
     return f"{source}: {key}"
+
+
+def locate(exc: ConfigError, source: str, overridden: set[str] | None = None) -> ConfigError:
+    """``exc`` with the file (or ``--set``) in front of a bare dotted key.
+
+    Checks that run on the parts built from a config (cell models, levelers,
+    the erase pool) know the key but not the file; every path from a user's
+    file passes their errors through here.  An error that already names its
+    place is returned as it is.
+    """
+    where = exc.where
+    section = where.split(".", 1)[0]
+    if ":" in where or where.startswith("--") or section not in RunConfig.model_fields:
+        return exc
+    return type(exc)(_where(source, where, overridden or set()), exc.found, exc.allowed)
+
+
+def source_name(source: Any) -> str:
+    """How errors name a config source: its path, or what kind of object it was."""
+    if isinstance(source, RunConfig):
+        return "<config>"
+    if isinstance(source, Mapping):
+        return "<dict>"
+    if source is None:
+        return "<defaults>"
+    return str(source)
 
 
 def validate(data: dict, source: str = "<config>", overridden: set[str] | None = None) -> RunConfig:
@@ -99,17 +168,27 @@ def validate(data: dict, source: str = "<config>", overridden: set[str] | None =
         for section, values in load_preset(name).items():
             if isinstance(values, dict):
                 data[section] = {**values, **data.get(section, {})}
+    for section, values in data.items():
+        if section in RunConfig.model_fields and not isinstance(values, dict):
+            raise ConfigError(_where(source, section, overridden), repr(values), f"a table [{section}]")
     try:
         cfg = RunConfig.model_validate(data)
     except ValidationError as exc:
         err = exc.errors()[0]
-        key = ".".join(str(p) for p in err["loc"]) or "(top level)"
+        if err["type"] in ("extra_forbidden", "missing"):
+            key = ".".join(str(p) for p in err["loc"]) or "(top level)"
+        else:
+            key = _key_of(err["loc"])
         found = repr(err.get("input")) if err["type"] != "missing" else "nothing"
         if err["type"] == "extra_forbidden":
             found = f"unknown key '{err['loc'][-1]}'"
-        raise ConfigError(_where(source, key, overridden), found, _allowed(err)) from None
+        raise ConfigError(_where(source, key, overridden), found, _allowed(err, key)) from None
     check_consistency(cfg, source, overridden)
     return cfg
+
+
+# Per-level cell fields: one number, or exactly one value per level.
+PER_LEVEL = ("program_sigma_decades", "pv_mean_iterations", "pulse_ns", "pulse_pj", "drift_nu")
 
 
 def check_consistency(cfg: RunConfig, source: str, overridden: set[str]) -> None:
@@ -138,15 +217,59 @@ def check_consistency(cfg: RunConfig, source: str, overridden: set[str]) -> None
         if a.bank_budget_ua < cfg.cell.reset_ua:
             raise ConfigError(_where(source, f"array.{key}", overridden), str(a.bank_budget_ua),
                               f"at least cell.reset_ua ({cfg.cell.reset_ua}) so one cell can be reset")
+    cell = cfg.cell
+    n = 1 << cell.bits_per_cell
+    if c.write_pause and cell.bits_per_cell > 1:
+        # Pausing is modelled between the SET/RESET rounds of SLC writes; an MLC
+        # write is one program-and-verify sequence that would ignore the switch.
+        key = "controller.write_pause" if "controller.write_pause" in overridden or \
+            "cell.bits_per_cell" not in overridden else "cell.bits_per_cell"
+        raise ConfigError(_where(source, key, overridden),
+                          f"write_pause = true with cell.bits_per_cell = {cell.bits_per_cell}",
+                          "write_pause only with single-level cells (bits_per_cell = 1)")
+
+    def level_key(name: str) -> str:
+        # A level count changed by --set is the thing to blame for a list left from the file.
+        if "cell.bits_per_cell" in overridden and f"cell.{name}" not in overridden:
+            return "--set cell.bits_per_cell"
+        return _where(source, f"cell.{name}", overridden)
+
+    if len(cell.level_log10_ohm) != n:
+        raise ConfigError(level_key("level_log10_ohm"),
+                          f"{len(cell.level_log10_ohm)} values",
+                          f"{n} values, one per level of cell.bits_per_cell = {cell.bits_per_cell}")
+    th = cell.read_thresholds_log10_ohm
+    if th is not None and len(th) != n - 1:
+        raise ConfigError(level_key("read_thresholds_log10_ohm"), f"{len(th)} values",
+                          f"{n - 1} values, one between each two of the {n} levels")
+    for name in PER_LEVEL:
+        value = getattr(cell, name)
+        if isinstance(value, list) and len(value) != n:
+            raise ConfigError(level_key(name), f"{len(value)} values {value}",
+                              f"one number or {n} values (one per level of cell.bits_per_cell = "
+                              f"{cell.bits_per_cell})")
 
 
 def read_toml(path: str | Path) -> dict:
+    """Parse a TOML file; a UTF-8 byte-order mark at its start is allowed."""
     p = Path(path)
     try:
-        with p.open("rb") as fh:
-            return tomllib.load(fh)
+        raw = p.read_bytes()
     except FileNotFoundError:
-        raise ConfigError(str(p), "no such file", "a path to a TOML run config") from None
+        raise ConfigError(str(p), "no such file", "a path to a TOML file") from None
+    except IsADirectoryError:
+        raise ConfigError(str(p), "a folder", "a path to a TOML file") from None
+    except OSError as exc:
+        raise ConfigError(str(p), f"a file that cannot be read ({exc.strerror})",
+                          "a readable TOML file") from None
+    try:
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        line = raw[:exc.start].count(b"\n") + 1
+        raise ConfigError(f"{p}:{line}", f"the byte 0x{raw[exc.start]:02x}, which is not UTF-8",
+                          "UTF-8 text (save the file as UTF-8)") from None
+    try:
+        return tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise ConfigError(str(p), f"invalid TOML ({exc})", "TOML syntax") from None
 
@@ -164,14 +287,15 @@ def load_config(
     overrides:
         ``{"section.key": value}`` or a list of ``"section.key=value"`` strings.
     """
+    name = source_name(source)
     if isinstance(source, RunConfig):
-        data, name = source.model_dump(), "<config>"
+        data = source.model_dump()
     elif isinstance(source, Mapping):
-        data, name = copy.deepcopy(dict(source)), "<dict>"
+        data = copy.deepcopy(dict(source))
     elif source is None:
-        data, name = {}, "<defaults>"
+        data = {}
     else:
-        data, name = read_toml(source), str(source)
+        data = read_toml(source)
     items: list[tuple[str, Any]] = []
     if isinstance(overrides, Mapping):
         items = list(overrides.items())
