@@ -5,7 +5,7 @@ from pathlib import Path
 
 import click
 
-from memsim.cli.common import SET_HELP, naming, fmt, overrides, print_summary
+from memsim.cli.common import SET_HELP, fmt, naming, overrides, print_summary
 
 
 @click.command()

@@ -108,8 +108,7 @@ def _allowed(err: dict, key: str = "") -> str:
             return "one of " + ", ".join(model.model_fields)
     msg = err["msg"]
     for prefix in ("Input should be ", "String should "):
-        if msg.startswith(prefix):
-            msg = msg[len(prefix):]
+        msg = msg.removeprefix(prefix)
     for theirs, ours in _WORDING:
         if msg.startswith(theirs):
             msg = ours + msg[len(theirs):]

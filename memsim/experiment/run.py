@@ -11,9 +11,9 @@ import numpy as np
 from memsim import __version__
 from memsim.config import RunConfig, load_config
 from memsim.config.load import locate, source_name
-from memsim.errors import ConfigError
 from memsim.engine.refresh_agent import RefreshAgent
 from memsim.engine.timing import TimingEngine, TimingTotals
+from memsim.errors import ConfigError
 from memsim.experiment.build import build_path, build_source, source_fields
 from memsim.experiment.checks import check_parts
 from memsim.experiment.lifetime import lifetime_fields

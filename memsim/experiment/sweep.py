@@ -47,7 +47,7 @@ from memsim.config import RunConfig
 from memsim.config.load import read_toml
 from memsim.errors import ConfigError, UserError
 from memsim.experiment.cache import RunCache, config_key, table_from_entry, write_frame
-from memsim.experiment.executors import Task, error_line, make_executor
+from memsim.experiment.executors import Task, make_executor
 from memsim.metrics.result import atomic_write_text
 from memsim.metrics.stats import summarize
 
