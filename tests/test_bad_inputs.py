@@ -47,6 +47,8 @@ CONFIGS = [
     # hangs before
     ("[workload]\ninterval_ns = inf\n", "run", "workload.interval_ns"),
     ("[workload]\ninterval_ns = 1e30\n", "run", "workload.interval_ns"),
+    ("[array]\nlines = 67108864\n", "run", "array.lines"),
+    ("[run]\nchunk_requests = 1e9\n", "run", "run.chunk_requests"),
     ("[lifetime]\nwindow_writes = 1e15\n", "lifetime", "lifetime.window_writes"),
     ("[lifetime]\nwindow_writes = 1000000000000000\n", "lifetime", "lifetime.window_writes"),
     # silent wrong answers before: NaN / infinities, one per kind of float field
@@ -71,6 +73,8 @@ CONFIGS = [
     ('[cell]\nread_ns = "fast"\n', "run", "cell.read_ns"),
     ("[workload]\nrequests = 1500.5\n", "run", "workload.requests"),
     ("cell = 3\n", "run", "cell"),
+    ('refresh = 3\n[cell]\npreset = "pcm_mlc2"\n', "run", "refresh"),
+    ("[workload]\nrequests = 1979-05-27\n", "run", "workload.requests"),
     # write_pause is modelled for SLC writes only
     ('[cell]\npreset = "pcm_mlc2"\n[controller]\nwrite_pause = true\n', "run", "controller.write_pause"),
     # cross-field checks name the file
@@ -162,7 +166,7 @@ def test_bad_config_in_a_subprocess(tmp_path, text, key):
     cfg.write_bytes(text)
     p = subprocess.run([sys.executable, "-m", "memsim.cli", "run", str(cfg), "--out", str(tmp_path / "o")],
                        capture_output=True, text=True, cwd=tmp_path,
-                       env={**os.environ, "PYTHONPATH": str(ROOT)}, timeout=120)
+                       env={**os.environ, "PYTHONPATH": str(ROOT)}, timeout=120, check=False)
     assert_one_line(p.returncode, p.stdout, p.stderr, f"{cfg}{'' if key.startswith(':') else ': '}{key}")
 
 
@@ -181,10 +185,13 @@ SWEEPS = [
     ("[fixed]\nworkload.requests = 1500\n[grid]\nworkload.read_fraction = [0.5, nan]\n",
      "grid.workload.read_fraction"),
     ('[fixed]\nworkload.requests = 1500\n[grid]\nwrite.scheme = ["full_line", "magic"]\n', "grid.write.scheme"),
-    ("[fixed]\nworkload.requests = 1500\n[grid]\nwrite.scheme = [\"full_line\"]\n"
-     "[[zipped]]\ncontroller.write_queue = [16, 32]\ncontroller.drain_high = [12, 40]\n",
+    (("[fixed]\nworkload.requests = 1500\n[grid]\nwrite.scheme = [\"full_line\"]\n"
+      "[[zipped]]\ncontroller.write_queue = [16, 32]\ncontroller.drain_high = [12, 40]\n"),
      "zipped.controller.drain_high"),
     ("[fixed]\nworkload.requests = 1500\n[grid]\n", "grid"),
+    ("[fixed]\nworkload.requests = 1500\n[grid]\nworkload.read_fraction = [1979-05-27]\n",
+     "grid.workload.read_fraction"),
+    ("[fixed]\nworkload.requests = inf\n[grid]\nwrite.scheme = [\"full_line\"]\n", "fixed.workload.requests"),
     ("[fixed]\nworkload.requests = 1500\n", "grid"),
 ]
 

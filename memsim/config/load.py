@@ -13,7 +13,7 @@ from typing import Any
 
 from pydantic import BaseModel, ValidationError
 
-from memsim.config.schema import LIMIT_NOTES, RunConfig, load_preset, preset_names
+from memsim.config.schema import LIMIT_NOTES, MAX_MODELED_BYTES, RunConfig, load_preset, preset_names
 from memsim.errors import ConfigError
 
 
@@ -157,6 +157,9 @@ def validate(data: dict, source: str = "<config>", overridden: set[str] | None =
     """Validate a plain dict into a :class:`RunConfig` or raise one ConfigError."""
     overridden = overridden or set()
     data = copy.deepcopy(data)
+    for section, values in data.items():
+        if section in RunConfig.model_fields and not isinstance(values, dict):
+            raise ConfigError(_where(source, section, overridden), repr(values), f"a table [{section}]")
     cell = data.get("cell")
     if isinstance(cell, dict) and "preset" in cell:
         name = cell["preset"]
@@ -167,9 +170,6 @@ def validate(data: dict, source: str = "<config>", overridden: set[str] | None =
         for section, values in load_preset(name).items():
             if isinstance(values, dict):
                 data[section] = {**values, **data.get(section, {})}
-    for section, values in data.items():
-        if section in RunConfig.model_fields and not isinstance(values, dict):
-            raise ConfigError(_where(source, section, overridden), repr(values), f"a table [{section}]")
     try:
         cfg = RunConfig.model_validate(data)
     except ValidationError as exc:
@@ -206,6 +206,11 @@ def check_consistency(cfg: RunConfig, source: str, overridden: set[str]) -> None
     if cfg.write.word_bits > a.line_bytes * 8:
         raise ConfigError(_where(source, "write.word_bits", overridden), str(cfg.write.word_bits),
                           f"at most the line size in bits ({a.line_bytes * 8})")
+    if a.lines * a.line_bytes > MAX_MODELED_BYTES:
+        raise ConfigError(_where(source, "array.lines", overridden), f"{a.lines} lines of {a.line_bytes} bytes",
+                          f"at most {MAX_MODELED_BYTES >> 30} GiB of modeled lines (array.lines x "
+                          "array.line_bytes; every modeled line is held in memory with its state; "
+                          "array.capacity_gib scales results to a larger device)")
     if cfg.footprint > a.lines:
         raise ConfigError(_where(source, "workload.footprint_lines", overridden),
                           str(cfg.workload.footprint_lines), f"at most array.lines ({a.lines})")

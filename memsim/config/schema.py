@@ -97,8 +97,13 @@ MAX_WINDOW_WRITES = 10_000_000_000
 # Times beyond a day of simulated time between two events are not a memory
 # workload; they only push the clock towards overflow.
 MAX_GAP_NS = 86_400e9
+# Content of the modeled lines (array.lines x array.line_bytes) a run may hold:
+# the write path keeps it with per-line state of a few hundred bytes more per
+# line (measured: about 3 GB for 4 Mi lines of 64 bytes).
+MAX_MODELED_BYTES = 1 << 30
 # Why a bound is there, appended to the one-line error that quotes it.
 LIMIT_NOTES = {
+    "run.chunk_requests": "each chunk of requests is held in memory with its write content",
     "workload.requests": "every request's latency is kept in memory; use more seeds or a sweep for more",
     "lifetime.window_writes": "a longer window would run for hours",
     "workload.interval_ns": "a day of simulated time",
@@ -118,7 +123,8 @@ class RunSection(Section):
                       pattern=r"^[A-Za-z0-9_.-]+$")
     seed: Int = Field(1, ge=0, description="Seed of every random draw of the run.")
     out_dir: str = Field("results", description="Folder that receives the results folder.")
-    chunk_requests: Int = Field(65536, ge=1024, description="Requests generated per chunk.")
+    chunk_requests: Int = Field(65536, ge=1024, le=1 << 22,
+                                description="Requests generated per chunk (memory grows with it).")
 
 
 class CellSection(Section):

@@ -139,7 +139,7 @@ def _value_lists(table: Mapping[str, Any], where: str, same_length: bool = False
         check_key(key, w)
         if not isinstance(vals, list) or not vals:
             raise ConfigError(w, repr(vals), "a non-empty list of values")
-        if any(isinstance(v, (list, dict)) for v in vals):
+        if not all(isinstance(v, (bool, int, float, str)) for v in vals):
             raise ConfigError(w, repr(vals), "a list of plain values (numbers, strings, booleans)")
         if len({json.dumps(v) for v in vals}) != len(vals):
             raise ConfigError(w, repr(vals), "distinct values (a repeated value would repeat a point)")
