@@ -92,6 +92,10 @@ CONFIGS = [
     ('[write]\nscheme = "block_erase"\n[controller]\nhint_preset = true\n', "run", "write.scheme"),
     ('[cell]\npreset = "pcm_mlc2"\n[write]\nscheme = "block_erase"\n', "run", "write.scheme"),
     ("[cell]\ndrift_t_max_s = 0.5\n", "drift", "cell.drift_t_max_s"),
+    ("[refresh]\ntemperature_k = 350.0\n", "run", "refresh.temperature_k"),
+    ('[array]\nlines = 1024\n[workload]\npattern = "hot_set"\nhot_lines = 5000\n', "run", "workload.hot_lines"),
+    ('[array]\nlines = 1024\n[workload]\npattern = "repeated_address"\nattack_line = 5000\n', "run",
+     "workload.attack_line"),
 ]
 
 

@@ -16,6 +16,7 @@ from memsim.policy.erase import BlockPool
 from memsim.policy.write import SCHEMES
 from memsim.tech.array import AddressMap
 from memsim.tech.models import drift_params, mlc_cell
+from memsim.workload.synthetic import AddressPattern
 
 # Levelers over more lines than this are checked when the run builds them
 # (building one costs memory in proportion to the lines).
@@ -27,7 +28,12 @@ def check_parts(cfg: RunConfig) -> None:
     check_names(cfg)
     if cfg.cell.bits_per_cell > 1:
         mlc_cell(cfg)
-    drift_params(cfg)
+    # Temperature other than the drift reference needs an activation energy.
+    drift_params(cfg).acceleration(cfg.refresh.temperature_k)
+    w = cfg.workload
+    if w.pattern in ("repeated_address", "hot_set"):    # cheap to build; their lines must fit the footprint
+        AddressPattern(w.pattern, cfg.footprint, np.random.default_rng(0), attack_line=w.attack_line,
+                       hot_lines=w.hot_lines)
     if cfg.footprint <= _LEVELER_CHECK_LINES:
         build_leveler(cfg, np.random.default_rng(0))
     if SCHEMES[cfg.write.scheme].out_of_place:
