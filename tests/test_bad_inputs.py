@@ -49,6 +49,15 @@ CONFIGS = [
     ("[workload]\ninterval_ns = 1e30\n", "run", "workload.interval_ns"),
     ("[array]\nlines = 67108864\n", "run", "array.lines"),
     ("[run]\nchunk_requests = 1e9\n", "run", "run.chunk_requests"),
+    # huge values that overflowed machine integers inside the model
+    ('[cell]\npreset = "pcm_mlc2"\npv_max_iterations = 1e300\n', "run", "cell.pv_max_iterations"),
+    ("[array]\nrow_lines = 1000000000000000000000000000000\n", "run", "array.row_lines"),
+    ("[array]\nbank_budget_ua = 1e300\n", "run", "array.bank_budget_ua"),
+    ("[power]\nbudget_ua = 1e300\n", "run", "power.budget_ua"),
+    ("[array]\ncapacity_gib = 1e300\n", "run", "array.capacity_gib"),
+    ("[refresh]\ncorrectable_bits = 1e30\n", "run", "refresh.correctable_bits"),
+    ("[lifetime]\nwrite_rate_gbps = 1e300\n", "run", "lifetime.write_rate_gbps"),
+    ("[cell]\nread_thresholds_log10_ohm = [1.0]\n", "run", "cell.read_thresholds_log10_ohm"),
     ("[lifetime]\nwindow_writes = 1e15\n", "lifetime", "lifetime.window_writes"),
     ("[lifetime]\nwindow_writes = 1000000000000000\n", "lifetime", "lifetime.window_writes"),
     # silent wrong answers before: NaN / infinities, one per kind of float field

@@ -101,6 +101,8 @@ MAX_GAP_NS = 86_400e9
 # the write path keeps it with per-line state of a few hundred bytes more per
 # line (measured: about 3 GB for 4 Mi lines of 64 bytes).
 MAX_MODELED_BYTES = 1 << 30
+# A kiloampere: far beyond any chip, small enough that cells per round stay machine integers.
+MAX_CURRENT_UA = 1e9
 # Why a bound is there, appended to the one-line error that quotes it.
 LIMIT_NOTES = {
     "run.chunk_requests": "each chunk of requests is held in memory with its write content",
@@ -157,7 +159,7 @@ class CellSection(Section):
     pv_model: Literal["geometric", "poisson"] = Field("geometric",
                                                       description="Iterations-per-write model.")
     pv_mean_iterations: PerLevelAtLeastOne = Field(1.0, description="Mean program-and-verify iterations per level.")
-    pv_max_iterations: Int = Field(16, ge=1, description="Cap on program-and-verify iterations.")
+    pv_max_iterations: Int = Field(16, ge=1, le=1024, description="Cap on program-and-verify iterations.")
     pulse_ns: PerLevelNonNegative | None = Field(
         None, description="Programming pulse per level, ns; none = SET pulse for the lowest level, "
                           "RESET pulse for the others.")
@@ -181,12 +183,12 @@ class ArraySection(Section):
     lines: Int = Field(65536, ge=16, le=1 << 26,
                        description="Lines modeled with their content (the modeled capacity).")
     bank_hash: Bool = Field(False, description="XOR row bits into the bank index.")
-    row_lines: Int = Field(0, ge=0, description="Lines per row buffer; 0 = no row buffer.")
+    row_lines: Int = Field(0, ge=0, le=1 << 26, description="Lines per row buffer; 0 = no row buffer.")
     row_hit_ns: Float = Field(10.0, gt=0, description="Read latency on a row-buffer hit, ns.")
     burst_ns: Float = Field(5.0, ge=0, description="Data-bus time to move one line, ns.")
-    bank_budget_ua: Float = Field(38400.0, gt=0,
+    bank_budget_ua: Float = Field(38400.0, gt=0, le=MAX_CURRENT_UA,
                                   description="Programming current a bank may draw at once, uA.")
-    capacity_gib: Float = Field(16.0, gt=0,
+    capacity_gib: Float = Field(16.0, gt=0, le=1 << 20,
                                 description="Device capacity the modeled lines stand for, GiB "
                                             "(used to scale lifetime).")
 
@@ -275,7 +277,7 @@ class LifetimeSection(Section):
     capacity_loss: Float = Field(0.0, ge=0, lt=1,
                                  description="End of life at this share of lines dead; 0 = first dead line.")
     endurance_scale: Float = Field(1e4, ge=1, description="Run to failure: endurance divided by this.")
-    write_rate_gbps: Float = Field(0.0, ge=0, description="Write rate for years, GB/s; 0 = from the run.")
+    write_rate_gbps: Float = Field(0.0, ge=0, le=1e6, description="Write rate for years, GB/s; 0 = from the run.")
     window_writes: Int = Field(0, ge=0, le=MAX_WINDOW_WRITES,
                                description="User writes the wear engine measures (at most 1e10); 0 = "
                                            "workload.requests.")
@@ -288,7 +290,8 @@ class RefreshSection(Section):
                             "age), scrub (a read that sees more than scrub_errors errors rewrites the line).")
     interval_s: Float = Field(3600.0, gt=0, description="Refresh period of the periodic policy, s.")
     temperature_k: Float = Field(300.0, gt=0, description="Operating temperature, K.")
-    correctable_bits: Int = Field(8, ge=0, description="Bit errors the line ECC corrects.")
+    correctable_bits: Int = Field(8, ge=0, le=2048,
+                                 description="Bit errors the line ECC corrects (at most the bits of a line).")
     max_fail_prob: Float = Field(1e-9, gt=0, lt=1,
                                  description="Target probability that a line is uncorrectable at refresh.")
     fail_model: Literal["binomial", "exact"] = Field("binomial", description="Line failure model.")
@@ -315,7 +318,7 @@ class EraseSection(Section):
 
 
 class PowerSection(Section):
-    budget_ua: Float = Field(0.0, ge=0, description="Programming current the scope may draw at once, uA; "
+    budget_ua: Float = Field(0.0, ge=0, le=MAX_CURRENT_UA, description="Programming current the scope may draw at once, uA; "
                                                     "0 = only the per-bank budget.")
     scope: Literal["channel", "device"] = Field("device", description="What shares the budget.")
 

@@ -26,8 +26,7 @@ _LEVELER_CHECK_LINES = 1 << 22
 def check_parts(cfg: RunConfig) -> None:
     """Build what can fail on a bad combination; raise its ConfigError (with a bare key)."""
     check_names(cfg)
-    if cfg.cell.bits_per_cell > 1:
-        mlc_cell(cfg)
+    mlc_cell(cfg)          # the refresh plan builds it for single-level cells too
     # Temperature other than the drift reference needs an activation energy.
     drift_params(cfg).acceleration(cfg.refresh.temperature_k)
     w = cfg.workload

@@ -551,6 +551,12 @@ def sweep(base: Any = None, grid: Mapping[str, Sequence[Any]] | None = None, *,
     ``error`` (empty when the run succeeded) and ``key`` (the cache key).
     ``df.attrs`` holds ``name``, ``varied`` and ``metrics``; pass it to
     :func:`point_stats` for means and confidence intervals.
+
+    Raises
+    ------
+    ConfigError
+        Before any run: an invalid point, an unknown metric name, or a sweep
+        that varies nothing.
     """
     spec = make_spec(base, grid, seeds=seeds, zipped=zipped, fixed=fixed, metrics=metrics,
                      tables=tables, name=name, base_seed=base_seed)
