@@ -64,6 +64,8 @@ CONFIGS = [
     ("[cell]\ndrift_nu = nan\n", "drift", "cell.drift_nu"),
     ('[cell]\npreset = "pcm_mlc2"\ndrift_nu = [0.001, 0.02, nan, 0.1]\n', "run", "cell.drift_nu"),
     ("[workload]\nhint_lead_ns = inf\n", "run", "workload.hint_lead_ns"),
+    ("[workload]\nhint_lead_ns = 1e7\n", "run", "workload.hint_lead_ns"),
+    ('[workload]\nhint_lead_ns = 100.0\narrival = "closed"\n', "run", "workload.hint_lead_ns"),
     ("[workload]\nread_fraction = nan\n", "run", "workload.read_fraction"),
     ("[cell]\nverify_ns = inf\n", "run", "cell.verify_ns"),                     # optional float
     ("[cell]\nlevel_log10_ohm = [3.0, nan]\n", "run", "cell.level_log10_ohm"),  # list of floats
@@ -223,6 +225,14 @@ def test_misspelt_sweep_metric_fails_up_front(tmp_path, capsys, monkeypatch):
     code, out, err = cli(capsys, monkeypatch, "sweep", p, "--workers", "1", "--quiet", "--out", tmp_path / "o")
     assert_one_line(code, out, err, f"{p}: sweep.metrics", "'read_latncy_p99_ns'")
     assert "'throughput_gbps'" not in err and not (tmp_path / "o").exists()
+
+
+def test_lifetime_with_write_hints_finishes(tmp_path, capsys, monkeypatch):
+    # The wear engine's write stream has no arrival times: hints must not hold it back.
+    out = run_ok(capsys, monkeypatch, "lifetime", ROOT / "workloads" / "lifetime_tide_archive.toml",
+                 "--set", "workload.hint_lead_ns=100", "--set", "workload.requests=2000",
+                 "--method", "extrapolated", "--write-rate", "1", "--out", tmp_path / "l")
+    assert "lifetime_years" in out
 
 
 def test_metric_of_a_later_point_kind_is_found(tmp_path):

@@ -221,6 +221,12 @@ def check_consistency(cfg: RunConfig, source: str, overridden: set[str]) -> None
         if a.bank_budget_ua < cfg.cell.reset_ua:
             raise ConfigError(_where(source, f"array.{key}", overridden), str(a.bank_budget_ua),
                               f"at least cell.reset_ua ({cfg.cell.reset_ua}) so one cell can be reset")
+    w = cfg.workload
+    if w.hint_lead_ns > 0 and w.arrival == "closed":
+        # Closed-loop arrival times are decided while running; a hint cannot precede them.
+        raise ConfigError(_where(source, "workload.hint_lead_ns", overridden), f"{w.hint_lead_ns} with "
+                          "workload.arrival = 'closed'",
+                          "0 with closed arrivals (hints need arrival times: poisson, fixed or onoff)")
     cell = cfg.cell
     n = 1 << cell.bits_per_cell
     if c.write_pause and cell.bits_per_cell > 1:

@@ -101,6 +101,11 @@ MAX_GAP_NS = 86_400e9
 # the write path keeps it with per-line state of a few hundred bytes more per
 # line (measured: about 3 GB for 4 Mi lines of 64 bytes).
 MAX_MODELED_BYTES = 1 << 30
+# Longest hint lead: the trace reader's default bound on how far a hint may
+# run ahead (memsim.workload.trace_format.DEFAULT_MAX_LEAD_NS), so a trace made
+# from the config replays; longer leads make the generator hold every request
+# in between.
+MAX_LEAD_NS = 1e6
 # A kiloampere: far beyond any chip, small enough that cells per round stay machine integers.
 MAX_CURRENT_UA = 1e9
 # Why a bound is there, appended to the one-line error that quotes it.
@@ -111,7 +116,7 @@ LIMIT_NOTES = {
     "workload.interval_ns": "a day of simulated time",
     "workload.on_ns": "a day of simulated time",
     "workload.off_ns": "a day of simulated time",
-    "workload.hint_lead_ns": "a day of simulated time",
+    "workload.hint_lead_ns": "the longest lead a trace replays",
 }
 
 
@@ -245,7 +250,7 @@ class WorkloadSection(Section):
     on_ns: Float = Field(20_000.0, gt=0, le=MAX_GAP_NS, description="Mean burst length (arrival onoff), ns.")
     off_ns: Float = Field(20_000.0, gt=0, le=MAX_GAP_NS, description="Mean idle gap (arrival onoff), ns.")
     outstanding: Int = Field(16, ge=1, description="Requests in flight (arrival closed).")
-    hint_lead_ns: Float = Field(0.0, ge=0, le=MAX_GAP_NS, description="Announce every write by a hint this long "
+    hint_lead_ns: Float = Field(0.0, ge=0, le=MAX_LEAD_NS, description="Announce every write by a hint this long "
                                                        "before it, ns; 0 = no hints.")
     data: Literal["random", "flip", "zeros", "ones"] = Field(
         "random", description="Data model of written content.")
