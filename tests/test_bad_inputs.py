@@ -161,7 +161,7 @@ def test_per_level_sigma_list_runs(tmp_path, capsys, monkeypatch):
     from memsim.tech.models import mlc_cell
 
     text = ('[cell]\npreset = "pcm_mlc2"\nprogram_sigma_decades = [0.12, 0.14, 0.15, 0.10]\n'
-            "[workload]\nrequests = 1e3\n")
+            "[workload]\nrequests = 1000\n")
     cfg = tmp_path / "mlc.toml"
     cfg.write_text(text)
     out = run_ok(capsys, monkeypatch, "run", cfg, "--out", tmp_path / "o")

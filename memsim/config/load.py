@@ -94,10 +94,22 @@ def _key_of(loc: tuple) -> str:
 _WORDING = (
     ("a valid boolean", "true or false"),
     ("a valid number", "a number (not true/false or a string)"),
-    ("a valid integer", "an integer"),
+    ("a valid integer", "an integer (not true/false or a string)"),
     ("a valid string", "a string in quotes"),
     ("a finite number", "a finite number (no nan or inf)"),
 )
+
+
+def _bounds(loc: tuple) -> str:
+    """`` >= lo``, `` <= hi`` of the field at ``loc`` as written in the schema."""
+    model = _model_at(loc)
+    field = model.model_fields.get(str(loc[-1])) if model is not None else None
+    parts = []
+    for m in field.metadata if field is not None else ():
+        for attr, sign in (("ge", ">="), ("gt", ">"), ("le", "<="), ("lt", "<")):
+            if getattr(m, attr, None) is not None:
+                parts.append(f"{sign} {getattr(m, attr)}")
+    return " and ".join(parts)
 
 
 def _allowed(err: dict, key: str = "") -> str:
@@ -106,6 +118,11 @@ def _allowed(err: dict, key: str = "") -> str:
         model = _model_at(err["loc"])
         if model is not None:
             return "one of " + ", ".join(model.model_fields)
+    if kind == "int_type" and isinstance(err.get("input"), float):
+        # 1e5 is a float in TOML; say how to write the number instead.
+        bounds = _bounds(err["loc"])
+        note = f" ({LIMIT_NOTES[key]})" if key in LIMIT_NOTES else ""
+        return f"an integer{' ' + bounds if bounds else ''}, written without a decimal point or exponent{note}"
     msg = err["msg"]
     for prefix in ("Input should be ", "String should "):
         msg = msg.removeprefix(prefix)

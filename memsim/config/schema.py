@@ -5,9 +5,9 @@ sections are ``run``, ``cell``, ``array``, ``controller``, ``write`` and
 ``workload``; unknown keys are rejected.  Cell defaults come from the SLC
 preset data file so the numbers (and their sources) live in one place.
 
-Types are strict where a loose reading would give a silently wrong run: an
-integer field takes whole numbers only (``true`` is not 1; ``1e5`` is taken
-as 100000), a switch takes only ``true``/``false``, a number field takes no
+Types are strict (pydantic strict mode) where a loose reading would give a
+silently wrong run: an integer field takes integers only (not ``true``, not
+``1e5``), a switch takes only ``true``/``false``, a number field takes no
 ``true``/``false`` or string, and no number field takes NaN or an infinity
 (none of them has a meaning for infinity; a field that some day needs it must
 say so in its description and opt out).  Sizes that cannot fit in memory or
@@ -20,7 +20,7 @@ import tomllib
 from importlib import resources
 from typing import Annotated, Any, Literal
 
-from pydantic import BaseModel, BeforeValidator, ConfigDict, Field, Strict
+from pydantic import BaseModel, BeforeValidator, ConfigDict, Field
 from pydantic_core import PydanticCustomError
 
 
@@ -43,19 +43,14 @@ _SLC = load_preset("pcm_slc")["cell"]
 
 
 def _whole(value: Any) -> Any:
-    """Let whole floats (``1e5``) through as ints; refuse booleans and strings."""
+    """Refuse booleans for an integer choice (``Literal[1, 2, 3]`` would take ``true`` as 1)."""
     if isinstance(value, bool):
         raise PydanticCustomError("int_type", "an integer (not true/false)")
-    if isinstance(value, str):
-        raise PydanticCustomError("int_type", "an integer (not a string)")
-    if isinstance(value, float) and math.isfinite(value) and value.is_integer():
-        return int(value)
     return value
 
 
-Int = Annotated[int, BeforeValidator(_whole), Strict()]
-Float = Annotated[float, Strict()]   # strict float still takes ints; never bools or strings
-Bool = Annotated[bool, Strict()]
+# The two integer choices: a Literal lets True through as 1 even in strict mode.
+WholeChoice = BeforeValidator(_whole)
 
 
 def _levels(lo: float, strict_lo: bool):
@@ -121,96 +116,97 @@ LIMIT_NOTES = {
 
 
 class Section(BaseModel):
+    # strict: no bool for a number, no number for a bool, no float for an int.
     # allow_inf_nan=False: NaN and infinities are refused in every float field.
-    model_config = ConfigDict(extra="forbid", validate_assignment=True, allow_inf_nan=False)
+    model_config = ConfigDict(extra="forbid", validate_assignment=True, strict=True, allow_inf_nan=False)
 
 
 class RunSection(Section):
     name: str = Field("run", description="Name of the run; results go to <out_dir>/<name>/.",
                       pattern=r"^[A-Za-z0-9_.-]+$")
-    seed: Int = Field(1, ge=0, description="Seed of every random draw of the run.")
+    seed: int = Field(1, ge=0, description="Seed of every random draw of the run.")
     out_dir: str = Field("results", description="Folder that receives the results folder.")
-    chunk_requests: Int = Field(65536, ge=1024, le=1 << 22,
+    chunk_requests: int = Field(65536, ge=1024, le=1 << 22,
                                 description="Requests generated per chunk (memory grows with it).")
 
 
 class CellSection(Section):
     preset: str = Field("pcm_slc", description="Technology preset data file the defaults come from.")
-    read_ns: Float = Field(_SLC["read_ns"], gt=0, description="Array read latency, ns.")
-    set_ns: Float = Field(_SLC["set_ns"], gt=0, description="SET pulse width, ns.")
-    reset_ns: Float = Field(_SLC["reset_ns"], gt=0, description="RESET pulse width, ns.")
-    read_ua: Float = Field(_SLC["read_ua"], ge=0, description="Read current per bit, uA.")
-    set_ua: Float = Field(_SLC["set_ua"], gt=0, description="SET current per cell, uA.")
-    reset_ua: Float = Field(_SLC["reset_ua"], gt=0, description="RESET current per cell, uA.")
-    read_pj: Float = Field(_SLC["read_pj"], ge=0, description="Read energy per bit, pJ.")
-    set_pj: Float = Field(_SLC["set_pj"], ge=0, description="SET energy per cell, pJ.")
-    reset_pj: Float = Field(_SLC["reset_pj"], ge=0, description="RESET energy per cell, pJ.")
-    endurance_mean: Float = Field(_SLC["endurance_mean"], gt=0,
+    read_ns: float = Field(_SLC["read_ns"], gt=0, description="Array read latency, ns.")
+    set_ns: float = Field(_SLC["set_ns"], gt=0, description="SET pulse width, ns.")
+    reset_ns: float = Field(_SLC["reset_ns"], gt=0, description="RESET pulse width, ns.")
+    read_ua: float = Field(_SLC["read_ua"], ge=0, description="Read current per bit, uA.")
+    set_ua: float = Field(_SLC["set_ua"], gt=0, description="SET current per cell, uA.")
+    reset_ua: float = Field(_SLC["reset_ua"], gt=0, description="RESET current per cell, uA.")
+    read_pj: float = Field(_SLC["read_pj"], ge=0, description="Read energy per bit, pJ.")
+    set_pj: float = Field(_SLC["set_pj"], ge=0, description="SET energy per cell, pJ.")
+    reset_pj: float = Field(_SLC["reset_pj"], ge=0, description="RESET energy per cell, pJ.")
+    endurance_mean: float = Field(_SLC["endurance_mean"], gt=0,
                                   description="Mean writes a cell survives.")
-    endurance_cov: Float = Field(_SLC["endurance_cov"], ge=0, lt=1,
+    endurance_cov: float = Field(_SLC["endurance_cov"], ge=0, lt=1,
                                  description="Coefficient of variation of cell endurance.")
     endurance_dist: Literal["normal", "lognormal"] = Field(
         "normal", description="Distribution of cell endurance.")
     # Multi-level cells and drift (see memsim/tech/mlc.py, memsim/tech/drift.py).
-    bits_per_cell: Annotated[Literal[1, 2, 3], BeforeValidator(_whole)] = Field(1, description="Bits stored per cell (1 = SLC).")
-    level_log10_ohm: list[Float] = Field(_SLC["level_log10_ohm"],
+    bits_per_cell: Annotated[Literal[1, 2, 3], WholeChoice] = Field(1, description="Bits stored per cell (1 = SLC).")
+    level_log10_ohm: list[float] = Field(_SLC["level_log10_ohm"],
                                          description="Target log10 resistance per level, ohm, lowest first.")
-    read_thresholds_log10_ohm: list[Float] | None = Field(
+    read_thresholds_log10_ohm: list[float] | None = Field(
         None, description="Read thresholds, log10 ohm; none = midpoints.")
     program_sigma_decades: PerLevelPositive = Field(
         _SLC["program_sigma_decades"], description="Spread of log10 R after programming, decades.")
-    verify_band_sigma: Float | None = Field(
+    verify_band_sigma: float | None = Field(
         _SLC["verify_band_sigma"], gt=0, description="Program-and-verify keeps R0 within this many sigma.")
     pv_model: Literal["geometric", "poisson"] = Field("geometric",
                                                       description="Iterations-per-write model.")
     pv_mean_iterations: PerLevelAtLeastOne = Field(1.0, description="Mean program-and-verify iterations per level.")
-    pv_max_iterations: Int = Field(16, ge=1, le=1024, description="Cap on program-and-verify iterations.")
+    pv_max_iterations: int = Field(16, ge=1, le=1024, description="Cap on program-and-verify iterations.")
     pulse_ns: PerLevelNonNegative | None = Field(
         None, description="Programming pulse per level, ns; none = SET pulse for the lowest level, "
                           "RESET pulse for the others.")
     pulse_pj: PerLevelNonNegative | None = Field(None, description="Energy per pulse per level, pJ.")
-    verify_ns: Float | None = Field(None, ge=0, description="Verify read per iteration, ns; none = read_ns.")
-    verify_pj: Float | None = Field(None, ge=0, description="Verify energy per cell, pJ; none = read_pj.")
+    verify_ns: float | None = Field(None, ge=0, description="Verify read per iteration, ns; none = read_ns.")
+    verify_pj: float | None = Field(None, ge=0, description="Verify energy per cell, pJ; none = read_pj.")
     drift_nu: PerLevelNonNegative = Field(_SLC["drift_nu"], description="Mean drift exponent per level.")
-    drift_nu_rel_sd: Float = Field(_SLC["drift_nu_rel_sd"], ge=0,
+    drift_nu_rel_sd: float = Field(_SLC["drift_nu_rel_sd"], ge=0,
                                    description="Spread of the drift exponent, fraction of its mean.")
-    drift_t0_s: Float = Field(1.0, gt=0, description="Reference time of the drift law, s.")
-    drift_t_max_s: Float = Field(1.0e9, gt=0, description="Longest age the drift law is trusted to, s.")
-    drift_activation_ev: Float | None = Field(
+    drift_t0_s: float = Field(1.0, gt=0, description="Reference time of the drift law, s.")
+    drift_t_max_s: float = Field(1.0e9, gt=0, description="Longest age the drift law is trusted to, s.")
+    drift_activation_ev: float | None = Field(
         None, ge=0, description="Activation energy of drift, eV; none = reference temperature only.")
-    drift_reference_k: Float = Field(300.0, gt=0, description="Temperature the drift values hold at, K.")
+    drift_reference_k: float = Field(300.0, gt=0, description="Temperature the drift values hold at, K.")
 
 
 class ArraySection(Section):
-    channels: Int = Field(1, ge=1, le=64, description="Independent channels, each with a data bus.")
-    banks: Int = Field(8, ge=1, le=1024, description="Banks per channel.")
-    line_bytes: Int = Field(64, description="Line (access unit) size, bytes.")
-    lines: Int = Field(65536, ge=16, le=1 << 26,
+    channels: int = Field(1, ge=1, le=64, description="Independent channels, each with a data bus.")
+    banks: int = Field(8, ge=1, le=1024, description="Banks per channel.")
+    line_bytes: int = Field(64, description="Line (access unit) size, bytes.")
+    lines: int = Field(65536, ge=16, le=1 << 26,
                        description="Lines modeled with their content (the modeled capacity).")
-    bank_hash: Bool = Field(False, description="XOR row bits into the bank index.")
-    row_lines: Int = Field(0, ge=0, le=1 << 26, description="Lines per row buffer; 0 = no row buffer.")
-    row_hit_ns: Float = Field(10.0, gt=0, description="Read latency on a row-buffer hit, ns.")
-    burst_ns: Float = Field(5.0, ge=0, description="Data-bus time to move one line, ns.")
-    bank_budget_ua: Float = Field(38400.0, gt=0, le=MAX_CURRENT_UA,
+    bank_hash: bool = Field(False, description="XOR row bits into the bank index.")
+    row_lines: int = Field(0, ge=0, le=1 << 26, description="Lines per row buffer; 0 = no row buffer.")
+    row_hit_ns: float = Field(10.0, gt=0, description="Read latency on a row-buffer hit, ns.")
+    burst_ns: float = Field(5.0, ge=0, description="Data-bus time to move one line, ns.")
+    bank_budget_ua: float = Field(38400.0, gt=0, le=MAX_CURRENT_UA,
                                   description="Programming current a bank may draw at once, uA.")
-    capacity_gib: Float = Field(16.0, gt=0, le=1 << 20,
+    capacity_gib: float = Field(16.0, gt=0, le=1 << 20,
                                 description="Device capacity the modeled lines stand for, GiB "
                                             "(used to scale lifetime).")
 
 
 class ControllerSection(Section):
-    read_queue: Int = Field(64, ge=1, description="Read queue entries per bank.")
-    write_queue: Int = Field(32, ge=1, description="Write queue entries per bank.")
-    drain_high: Int = Field(24, ge=1, description="Write-queue length that starts a drain.")
-    drain_low: Int = Field(8, ge=0, description="Write-queue length that ends a drain.")
-    idle_writes: Bool = Field(True, description="Serve writes when no read waits (outside drains).")
-    write_cancel: Bool = Field(False, description="Abort an in-flight write when a read arrives at its "
+    read_queue: int = Field(64, ge=1, description="Read queue entries per bank.")
+    write_queue: int = Field(32, ge=1, description="Write queue entries per bank.")
+    drain_high: int = Field(24, ge=1, description="Write-queue length that starts a drain.")
+    drain_low: int = Field(8, ge=0, description="Write-queue length that ends a drain.")
+    idle_writes: bool = Field(True, description="Serve writes when no read waits (outside drains).")
+    write_cancel: bool = Field(False, description="Abort an in-flight write when a read arrives at its "
                                                   "bank (outside drains) and re-queue it.")
-    cancel_before: Float = Field(0.75, gt=0, le=1, description="Cancel only writes that have done less "
+    cancel_before: float = Field(0.75, gt=0, le=1, description="Cancel only writes that have done less "
                                                                "than this share of their programming.")
-    write_pause: Bool = Field(False, description="Pause a write between programming rounds to serve "
+    write_pause: bool = Field(False, description="Pause a write between programming rounds to serve "
                                                  "reads that arrived (outside drains).")
-    hint_preset: Bool = Field(False, description="Act on write hints: pre-program the hinted line to "
+    hint_preset: bool = Field(False, description="Act on write hints: pre-program the hinted line to "
                                                  "all-SET in idle time, so the write needs only RESET "
                                                  "pulses.")
 
@@ -219,7 +215,7 @@ class WriteSection(Section):
     scheme: str = Field("data_comparison",
                         description="Write scheme: full_line, data_comparison, flip_n_write or "
                                     "block_erase.")
-    word_bits: Annotated[Literal[8, 16, 32, 64], BeforeValidator(_whole)] = Field(32, description="Flip-N-Write word width, bits.")
+    word_bits: Annotated[Literal[8, 16, 32, 64], WholeChoice] = Field(32, description="Flip-N-Write word width, bits.")
 
 
 class WorkloadSection(Section):
@@ -229,61 +225,61 @@ class WorkloadSection(Section):
                                "memory out on purpose; trace replays workload.trace).")
     trace: str = Field("", description="Trace file replayed by pattern trace (text, .gz or .parquet); "
                                        "a relative path is taken from the config file's folder.")
-    skip_bad: Bool = Field(False, description="Skip malformed trace lines (and count them) "
+    skip_bad: bool = Field(False, description="Skip malformed trace lines (and count them) "
                                               "instead of stopping.")
-    attack_line: Int = Field(0, ge=0, description="Line hammered by repeated_address.")
-    burst: Int = Field(1000, ge=1, description="Writes per hammered line (birthday_attack).")
-    hot_lines: Int = Field(16, ge=1, description="Size of the hot set (hot_set).")
-    requests: Int = Field(100_000, ge=1, le=MAX_REQUESTS,
+    attack_line: int = Field(0, ge=0, description="Line hammered by repeated_address.")
+    burst: int = Field(1000, ge=1, description="Writes per hammered line (birthday_attack).")
+    hot_lines: int = Field(16, ge=1, description="Size of the hot set (hot_set).")
+    requests: int = Field(100_000, ge=1, le=MAX_REQUESTS,
                           description="Requests to issue (in lines); at most 5e7 per run (use seeds "
                                       "or a sweep for more).")
-    read_fraction: Float = Field(0.7, ge=0, le=1, description="Share of requests that are reads.")
-    footprint_lines: Int = Field(0, ge=0, description="Lines touched; 0 = all modeled lines.")
-    size_lines: Int = Field(1, ge=1, le=64, description="Consecutive lines per request.")
-    zipf_exponent: Float = Field(1.0, gt=0, description="Zipf exponent s (pattern zipf).")
-    hot_fraction: Float = Field(0.1, gt=0, lt=1, description="Share of footprint that is hot.")
-    hot_share: Float = Field(0.9, gt=0, lt=1, description="Share of accesses that go to hot lines.")
-    stride_lines: Int = Field(1, ge=1, description="Stride in lines (pattern strided).")
+    read_fraction: float = Field(0.7, ge=0, le=1, description="Share of requests that are reads.")
+    footprint_lines: int = Field(0, ge=0, description="Lines touched; 0 = all modeled lines.")
+    size_lines: int = Field(1, ge=1, le=64, description="Consecutive lines per request.")
+    zipf_exponent: float = Field(1.0, gt=0, description="Zipf exponent s (pattern zipf).")
+    hot_fraction: float = Field(0.1, gt=0, lt=1, description="Share of footprint that is hot.")
+    hot_share: float = Field(0.9, gt=0, lt=1, description="Share of accesses that go to hot lines.")
+    stride_lines: int = Field(1, ge=1, description="Stride in lines (pattern strided).")
     arrival: Literal["poisson", "fixed", "onoff", "closed"] = Field(
         "poisson", description="Arrival process; closed = a fixed number outstanding.")
-    interval_ns: Float = Field(50.0, gt=0, le=MAX_GAP_NS, description="Mean time between arrivals, ns.")
-    on_ns: Float = Field(20_000.0, gt=0, le=MAX_GAP_NS, description="Mean burst length (arrival onoff), ns.")
-    off_ns: Float = Field(20_000.0, gt=0, le=MAX_GAP_NS, description="Mean idle gap (arrival onoff), ns.")
-    outstanding: Int = Field(16, ge=1, description="Requests in flight (arrival closed).")
-    hint_lead_ns: Float = Field(0.0, ge=0, le=MAX_LEAD_NS, description="Announce every write by a hint this long "
+    interval_ns: float = Field(50.0, gt=0, le=MAX_GAP_NS, description="Mean time between arrivals, ns.")
+    on_ns: float = Field(20_000.0, gt=0, le=MAX_GAP_NS, description="Mean burst length (arrival onoff), ns.")
+    off_ns: float = Field(20_000.0, gt=0, le=MAX_GAP_NS, description="Mean idle gap (arrival onoff), ns.")
+    outstanding: int = Field(16, ge=1, description="Requests in flight (arrival closed).")
+    hint_lead_ns: float = Field(0.0, ge=0, le=MAX_LEAD_NS, description="Announce every write by a hint this long "
                                                        "before it, ns; 0 = no hints.")
     data: Literal["random", "flip", "zeros", "ones"] = Field(
         "random", description="Data model of written content.")
-    flip_fraction: Float = Field(0.1, ge=0, le=1, description="Share of bits a write changes (data flip).")
-    one_fraction: Float = Field(0.1, ge=0, le=1,
+    flip_fraction: float = Field(0.1, ge=0, le=1, description="Share of bits a write changes (data flip).")
+    one_fraction: float = Field(0.1, ge=0, le=1,
                                 description="Probability of a 1 bit (data zeros; data ones uses 1 - it).")
 
 
 class LevelingSection(Section):
     scheme: str = Field("none", description="Wear leveler (memsim list shows the names).")
-    psi: Int = Field(100, ge=1, description="Start-Gap: user writes between gap moves.")
-    regions: Int = Field(8, ge=1, description="Region Start-Gap: number of regions.")
-    randomize: Bool = Field(False, description="Region Start-Gap: randomize addresses first.")
-    rounds: Int = Field(4, ge=1, description="Feistel rounds of the address randomizer.")
-    region_lines: Int = Field(0, ge=0, description="Lines per region (security_refresh, hot_cold_swap); "
+    psi: int = Field(100, ge=1, description="Start-Gap: user writes between gap moves.")
+    regions: int = Field(8, ge=1, description="Region Start-Gap: number of regions.")
+    randomize: bool = Field(False, description="Region Start-Gap: randomize addresses first.")
+    rounds: int = Field(4, ge=1, description="Feistel rounds of the address randomizer.")
+    region_lines: int = Field(0, ge=0, description="Lines per region (security_refresh, hot_cold_swap); "
                                                   "0 = the scheme's default.")
-    interval: Int = Field(100, ge=1, description="Writes between key-rotation swaps (security_refresh) or "
+    interval: int = Field(100, ge=1, description="Writes between key-rotation swaps (security_refresh) or "
                                                 "between rotation steps (bit_rotation).")
-    period: Int = Field(10000, ge=1, description="Hot/cold swap: writes between swaps.")
-    table_writes_per_swap: Int = Field(2, ge=0, description="Hot/cold swap: table line writes per swap.")
-    step: Int = Field(8, ge=1, description="Bit rotation: bits the offset advances per step.")
+    period: int = Field(10000, ge=1, description="Hot/cold swap: writes between swaps.")
+    table_writes_per_swap: int = Field(2, ge=0, description="Hot/cold swap: table line writes per swap.")
+    step: int = Field(8, ge=1, description="Bit rotation: bits the offset advances per step.")
     inner: str = Field("none", description="Bit rotation: line remapper underneath it.")
 
 
 class LifetimeSection(Section):
     method: Literal["extrapolated", "run_to_failure", "both"] = Field(
         "both", description="Lifetime method of memsim lifetime.")
-    ecp_entries: Int = Field(0, ge=0, description="Failed cells a line survives (ECP correction entries).")
-    capacity_loss: Float = Field(0.0, ge=0, lt=1,
+    ecp_entries: int = Field(0, ge=0, description="Failed cells a line survives (ECP correction entries).")
+    capacity_loss: float = Field(0.0, ge=0, lt=1,
                                  description="End of life at this share of lines dead; 0 = first dead line.")
-    endurance_scale: Float = Field(1e4, ge=1, description="Run to failure: endurance divided by this.")
-    write_rate_gbps: Float = Field(0.0, ge=0, le=1e6, description="Write rate for years, GB/s; 0 = from the run.")
-    window_writes: Int = Field(0, ge=0, le=MAX_WINDOW_WRITES,
+    endurance_scale: float = Field(1e4, ge=1, description="Run to failure: endurance divided by this.")
+    write_rate_gbps: float = Field(0.0, ge=0, le=1e6, description="Write rate for years, GB/s; 0 = from the run.")
+    window_writes: int = Field(0, ge=0, le=MAX_WINDOW_WRITES,
                                description="User writes the wear engine measures (at most 1e10); 0 = "
                                            "workload.requests.")
 
@@ -293,37 +289,37 @@ class RefreshSection(Section):
         "none", description="Refresh policy: none, periodic (every line every interval_s), drift "
                             "(a line is refreshed when its age since its last write reaches the refresh "
                             "age), scrub (a read that sees more than scrub_errors errors rewrites the line).")
-    interval_s: Float = Field(3600.0, gt=0, description="Refresh period of the periodic policy, s.")
-    temperature_k: Float = Field(300.0, gt=0, description="Operating temperature, K.")
-    correctable_bits: Int = Field(8, ge=0, le=2048,
+    interval_s: float = Field(3600.0, gt=0, description="Refresh period of the periodic policy, s.")
+    temperature_k: float = Field(300.0, gt=0, description="Operating temperature, K.")
+    correctable_bits: int = Field(8, ge=0, le=2048,
                                  description="Bit errors the line ECC corrects (at most the bits of a line).")
-    max_fail_prob: Float = Field(1e-9, gt=0, lt=1,
+    max_fail_prob: float = Field(1e-9, gt=0, lt=1,
                                  description="Target probability that a line is uncorrectable at refresh.")
     fail_model: Literal["binomial", "exact"] = Field("binomial", description="Line failure model.")
-    scrub_errors: Int = Field(4, ge=0, description="Errors a read may see before scrub rewrites the line.")
+    scrub_errors: int = Field(4, ge=0, description="Errors a read may see before scrub rewrites the line.")
     start: Literal["spread", "fresh"] = Field(
         "spread", description="Line ages at the start: spread evenly over one refresh interval "
                               "(steady state) or all freshly written.")
-    scan_fraction: Float = Field(1 / 16, gt=0, le=1,
+    scan_fraction: float = Field(1 / 16, gt=0, le=1,
                                  description="Refresh scan period as a fraction of the refresh age.")
 
 
 class EraseSection(Section):
-    block_lines: Int = Field(16, ge=1, description="Lines per erase block (write.scheme block_erase).")
-    spare_fraction: Float = Field(0.15, gt=0, lt=1, description="Over-provisioned share of physical lines.")
+    block_lines: int = Field(16, ge=1, description="Lines per erase block (write.scheme block_erase).")
+    spare_fraction: float = Field(0.15, gt=0, lt=1, description="Over-provisioned share of physical lines.")
     init_state: Literal["set", "reset"] = Field(
         "set", description="State blocks are bulk-initialized to (set: writes need only RESET pulses).")
     victim: Literal["greedy", "cost_benefit", "fifo"] = Field("greedy",
                                                               description="Cleaner's victim choice.")
-    low_watermark: Int = Field(2, ge=2, description="Free blocks below which the bank cleans in the "
+    low_watermark: int = Field(2, ge=2, description="Free blocks below which the bank cleans in the "
                                                     "foreground.")
-    idle_blocks: Int = Field(4, ge=0, description="Free blocks the bank keeps by cleaning in idle time.")
+    idle_blocks: int = Field(4, ge=0, description="Free blocks the bank keeps by cleaning in idle time.")
     fallback: Literal["in_place", "wait"] = Field(
         "in_place", description="When no initialized line is free: write in place, or wait for a clean.")
 
 
 class PowerSection(Section):
-    budget_ua: Float = Field(0.0, ge=0, le=MAX_CURRENT_UA, description="Programming current the scope may draw at once, uA; "
+    budget_ua: float = Field(0.0, ge=0, le=MAX_CURRENT_UA, description="Programming current the scope may draw at once, uA; "
                                                     "0 = only the per-bank budget.")
     scope: Literal["channel", "device"] = Field("device", description="What shares the budget.")
 
