@@ -32,6 +32,7 @@ finish and a grown grid reuses every point it shares with the old one.
 """
 from __future__ import annotations
 
+import difflib
 import itertools
 import json
 import re
@@ -341,8 +342,15 @@ def check_metrics(spec: SweepSpec, tasks: Sequence[Task], probe_points: int = 16
         if wanted <= set(known):
             return
     missing = [m for m in spec.metrics if m not in known]
-    raise ConfigError(f"{spec.source}: sweep.metrics", ", ".join(map(repr, missing)),
-                      "summary keys: " + ", ".join(known))
+    raise ConfigError(f"{spec.source}: sweep.metrics", ", ".join(map(repr, missing)), metric_hint(missing, known))
+
+
+def metric_hint(missing: Sequence[str], known: Sequence[str]) -> str:
+    """A short 'allowed' for unknown metric names: the closest summary keys, not all of them."""
+    close = list(dict.fromkeys(c for m in missing for c in difflib.get_close_matches(m, known, n=3, cutoff=0.5)))
+    shown = close or list(known[:5])
+    return (f"summary keys such as {', '.join(shown)} ({len(known)} in all; "
+            "memsim run prints them)")
 
 
 def run_sweep(spec: SweepSpec, *, workers: int | None = None, scheduler: str | None = None,
@@ -434,7 +442,7 @@ def assemble(spec: SweepSpec, rows: list[dict], tasks: list[Task | None], errors
         missing = [m for m in spec.metrics if m not in known]
         if missing and known:
             raise ConfigError(f"{spec.source}: sweep.metrics", ", ".join(map(repr, missing)),
-                              "summary keys: " + ", ".join(known))
+                              metric_hint(missing, known))
         metrics = list(spec.metrics)
     table = []
     for row, s, err, t in zip(rows, summaries, errors, tasks):
