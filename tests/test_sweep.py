@@ -120,7 +120,7 @@ def test_cli_bad_sweep_one_line_exit_2(tmp_path, capsys, monkeypatch):
     assert code == 2 and err.count("\n") == 1 and "bad.toml: grid.write.shceme" in err
     code, _, err = cli(capsys, monkeypatch, "sweep", tmp_path / "missing.toml")
     assert code == 2 and "missing.toml" in err and err.count("\n") == 1
-    ok = write_sweep(tmp_path, '[sweep]\nbase = "@DEMO@"\n', "ok.toml")
+    ok = write_sweep(tmp_path, '[sweep]\nbase = "@DEMO@"\n[grid]\nwrite.scheme = ["full_line"]\n', "ok.toml")
     code, _, err = cli(capsys, monkeypatch, "sweep", ok, "--workers", "0", "--out", tmp_path / "o")
     assert code == 2 and err == "error: --workers: found 0; allowed: a whole number >= 1\n"
 
@@ -195,19 +195,13 @@ def test_cache_key_ignores_placement_only():
     assert len({config_key(a), config_key(c), config_key(d), config_key(a, version="9.9")}) == 4
 
 
-def test_failing_points_are_recorded_and_others_finish(tmp_path):
+def test_invalid_point_fails_before_any_point_runs(tmp_path):
     spec = small_spec({"array.banks": [8, -3, 4]})
-    out = run_sweep(spec, workers=2, out=tmp_path / "o", progress=False)
-    df = out.runs
-    bad = df[df["array.banks"] == -3]
-    assert len(bad) == 2 and bad["throughput_gbps"].isna().all()
-    assert bad["error"].str.contains("grid.array.banks").all() and bad["error"].str.contains("found -3").all()
-    assert "\n" not in "".join(bad["error"])
-    good = df[df["array.banks"] != -3]
-    assert (good["error"] == "").all() and good["throughput_gbps"].notna().all()
-    assert out.failed == 2 and len(list((tmp_path / "o" / "cache").glob("*.json"))) == 4
-    st = out.stats
-    assert (st.loc[st["array.banks"] == -3, "n"] == 0).all()
+    with pytest.raises(ConfigError) as exc:
+        run_sweep(spec, workers=2, out=tmp_path / "o", progress=False)
+    msg = exc.value.one_line()
+    assert "grid.array.banks" in msg and "found -3" in msg and "\n" not in msg
+    assert not (tmp_path / "o").exists()          # nothing ran, nothing written
 
 
 def test_error_in_run_is_one_line_with_traceback_kept(tmp_path, monkeypatch):
@@ -234,10 +228,17 @@ def test_error_in_run_is_one_line_with_traceback_kept(tmp_path, monkeypatch):
     assert not (tmp_path / "o" / "errors.txt").exists()
 
 
-def test_unknown_metric_fails_after_caching(tmp_path):
+def test_unknown_metric_fails_before_running(tmp_path):
     spec = make_spec(DEMO, {"write.scheme": ["full_line"]}, seeds=1, fixed=SMALL, metrics=["throughput_gbs"])
     with pytest.raises(ConfigError, match="sweep.metrics.*throughput_gbs.*throughput_gbps"):
         run_sweep(spec, workers=1, out=tmp_path / "o", progress=False)
+    assert not (tmp_path / "o").exists()
+
+
+def test_unknown_metric_still_caught_after_running_without_the_probe(tmp_path):
+    spec = make_spec(DEMO, {"write.scheme": ["full_line"]}, seeds=1, fixed=SMALL, metrics=["throughput_gbs"])
+    with pytest.raises(ConfigError, match="sweep.metrics.*throughput_gbs.*throughput_gbps"):
+        run_sweep(spec, workers=1, out=tmp_path / "o", progress=False, check=False)
     assert len(list((tmp_path / "o" / "cache").glob("*.json"))) == 1  # nothing computed is lost
 
 
@@ -299,7 +300,7 @@ def test_killed_sweep_resumes_without_loss_duplication_or_recomputation(tmp_path
     assert len(list((out / "cache").glob("*.json"))) == total
 
 
-def test_cli_sweep_writes_tables_and_exit_1_on_failed_points(tmp_path, capsys, monkeypatch):
+def test_cli_sweep_writes_tables_and_exit_2_on_invalid_points(tmp_path, capsys, monkeypatch):
     spec_file = write_sweep(tmp_path, """
 [sweep]
 name = "two"
@@ -320,10 +321,9 @@ write.scheme = ["full_line", "flip_n_write"]
     assert set(st["metric"]) == {"throughput_gbps", "energy_per_bit_pj"} and len(st) == 4
     bad = write_sweep(tmp_path, spec_file.read_text().replace('"flip_n_write"]', '"magic"]'), "bad.toml")
     code, _, err = cli(capsys, monkeypatch, "sweep", bad, "--workers", "1", "--quiet", "--out", tmp_path / "b")
-    assert code == 1
-    assert "2 of 4 runs failed" in err and "'magic'" in err
-    df = pd.read_csv(tmp_path / "b" / "runs.csv", keep_default_na=False)
-    assert (df.loc[df["write.scheme"] == "full_line", "error"] == "").all()
+    assert code == 2 and err.count("\n") == 1
+    assert "bad.toml: grid.write.scheme" in err and "'magic'" in err
+    assert not (tmp_path / "b").exists()          # no point ran
 
 
 # --- atomic files ------------------------------------------------------------------------

@@ -1,7 +1,8 @@
 """Helpers shared by the command modules: printing, --set parsing, results folders."""
 from __future__ import annotations
 
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
 from pathlib import Path
 from typing import Any
 
@@ -16,6 +17,19 @@ def overrides(sets: tuple[str, ...]) -> dict:
     from memsim.config import parse_assignment
 
     return dict(parse_assignment(s) for s in sets)
+
+
+@contextmanager
+def naming(config: str, sets: tuple[str, ...]) -> Iterator[None]:
+    """Put CONFIG (or the --set) in front of a config error raised with a bare key while running."""
+    from memsim.config.load import locate, parse_assignment
+    from memsim.errors import ConfigError
+
+    try:
+        yield
+    except ConfigError as exc:
+        keys = {parse_assignment(s)[0] for s in sets}
+        raise locate(exc, config, keys) from None
 
 
 def fmt(v) -> str:

@@ -9,6 +9,7 @@ from memsim.cli.common import (
     REPLACE_HELP,
     SET_HELP,
     fmt,
+    naming,
     prepare_output,
     print_summary,
     report_saved,
@@ -26,8 +27,9 @@ def drift(config: str, sets: tuple[str, ...], out: str | None, replace: bool) ->
     """Print the error-rate table and refresh age of CONFIG's cells (no workload run)."""
     from memsim.experiment.drift import drift_report, save_drift_figure
 
-    cfg, claim = prepare_output(config, sets, out, replace, "drift")
-    result = drift_report(cfg)
+    with naming(config, sets):
+        cfg, claim = prepare_output(config, sets, out, replace, "drift")
+        result = drift_report(cfg)
 
     def save(folder: Path) -> None:
         result.save(folder)

@@ -9,6 +9,7 @@ from memsim.cli.common import (
     FULL_HELP,
     REPLACE_HELP,
     SET_HELP,
+    naming,
     prepare_output,
     print_summary,
     report_saved,
@@ -33,9 +34,10 @@ def lifetime_cmd(config: str, sets: tuple[str, ...], write_rate: float | None, m
     from memsim.experiment.lifetime import lifetime
     from memsim.report.wear_plot import save_wear_figure
 
-    cfg, claim = prepare_output(config, sets, out, replace, "lifetime", write_rate_gbps=write_rate,
-                                method=method)
-    result = lifetime(cfg, write_rate_gbps=write_rate, method=method)
+    with naming(config, sets):
+        cfg, claim = prepare_output(config, sets, out, replace, "lifetime", write_rate_gbps=write_rate,
+                                    method=method)
+        result = lifetime(cfg, write_rate_gbps=write_rate, method=method)
 
     def save(folder: Path) -> None:
         result.save(folder)

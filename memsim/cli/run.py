@@ -7,6 +7,7 @@ from memsim.cli.common import (
     FULL_HELP,
     REPLACE_HELP,
     SET_HELP,
+    naming,
     prepare_output,
     print_summary,
     report_saved,
@@ -25,8 +26,9 @@ def run(config: str, sets: tuple[str, ...], out: str | None, replace: bool, full
     """Run one CONFIG (TOML) and print its summary."""
     from memsim.experiment.run import simulate
 
-    cfg, claim = prepare_output(config, sets, out, replace, "run")
-    result = simulate(cfg)
+    with naming(config, sets):
+        cfg, claim = prepare_output(config, sets, out, replace, "run")
+        result = simulate(cfg)
     saved, err = save_results(claim, result.save, cfg.run.name)
     print_summary(result.summary, f"run {result.config['run']['name']} "
                                   f"(seed {result.seed}, {result.wall_s:.2f} s wall)",

@@ -47,16 +47,17 @@ def _print_info(file: str, info: dict) -> None:
     click.echo(f"trace {file} ({kind}; columns {','.join(info['columns'])}; {content})")
     hist = info["reuse_histogram"]
     n = info["requests"]
-    rows = [("requests", f"{n:,}", "")]
+    rows = [("rows", f"{info['rows']:,}", "trace rows; a row of size_lines n asks for n lines"),
+            ("line requests", f"{n:,}", "")]
     for op in ("reads", "writes", "hints"):
-        rows.append((op, f"{info[op]:,}", _pct(info[f"{op[:-1]}_fraction"])))
+        rows.append((op, f"{info[op]:,}", f"{_pct(info[f'{op[:-1]}_fraction'])} of line requests"))
     rows.append(("footprint", f"{info['footprint_lines']:,} lines",
                  f"{info['footprint_bytes']:,} bytes at {info['line_bytes']} B/line"))
     if n:
         rows.append(("time", f"{info['first_time_ns']:,.1f} .. {info['last_time_ns']:,.1f} ns",
                      f"span {info['span_ns']:,.1f} ns"))
         rate = info["request_rate_per_s"]
-        rows.append(("request rate", "-" if math.isnan(rate) else f"{rate / 1e6:,.3f} M/s", ""))
+        rows.append(("line request rate", "-" if math.isnan(rate) else f"{rate / 1e6:,.3f} M/s", ""))
     if info["skip_bad"]:
         rows.append(("bad lines skipped", f"{info['bad_lines']:,}", ""))
     width = max(len(r[0]) for r in rows)

@@ -13,7 +13,7 @@ from typing import Any
 
 from pydantic import BaseModel, ValidationError
 
-from memsim.config.schema import RunConfig, load_preset, preset_names
+from memsim.config.schema import LIMIT_NOTES, MAX_MODELED_BYTES, RunConfig, load_preset, preset_names
 from memsim.errors import ConfigError
 
 
@@ -65,30 +65,118 @@ def _model_at(loc: tuple) -> type[BaseModel] | None:
     return model
 
 
-def _allowed(err: dict) -> str:
+def _key_of(loc: tuple) -> str:
+    """The dotted config key of an error location, without pydantic's union branch tags.
+
+    ``("cell", "pulse_ns", "constrained-float")`` -> ``cell.pulse_ns``;
+    ``("cell", "level_log10_ohm", 2)`` -> ``cell.level_log10_ohm[2]``.
+    """
+    model: Any = RunConfig
+    parts: list[str] = []
+    for i, part in enumerate(loc):
+        fields = getattr(model, "model_fields", None)
+        if fields is None or str(part) not in fields:
+            break
+        parts.append(str(part))
+        ann = fields[str(part)].annotation
+        model = ann if isinstance(ann, type) and issubclass(ann, BaseModel) else None
+        if model is None:
+            rest = loc[i + 1:]
+            if rest and isinstance(rest[0], int):
+                parts[-1] += f"[{rest[0]}]"
+            break
+    if not parts:
+        return ".".join(str(p) for p in loc) or "(top level)"
+    return ".".join(parts)
+
+
+# Pydantic's wording -> ours, after "Input should be " is cut off.
+_WORDING = (
+    ("a valid boolean", "true or false"),
+    ("a valid number", "a number (not true/false or a string)"),
+    ("a valid integer", "an integer (not true/false or a string)"),
+    ("a valid string", "a string in quotes"),
+    ("a finite number", "a finite number (no nan or inf)"),
+)
+
+
+def _bounds(loc: tuple) -> str:
+    """`` >= lo``, `` <= hi`` of the field at ``loc`` as written in the schema."""
+    model = _model_at(loc)
+    field = model.model_fields.get(str(loc[-1])) if model is not None else None
+    parts = []
+    for m in field.metadata if field is not None else ():
+        for attr, sign in (("ge", ">="), ("gt", ">"), ("le", "<="), ("lt", "<")):
+            if getattr(m, attr, None) is not None:
+                parts.append(f"{sign} {getattr(m, attr)}")
+    return " and ".join(parts)
+
+
+def _allowed(err: dict, key: str = "") -> str:
     kind = err["type"]
     if kind == "extra_forbidden":
         model = _model_at(err["loc"])
         if model is not None:
             return "one of " + ", ".join(model.model_fields)
+    if kind == "int_type" and isinstance(err.get("input"), float):
+        # 1e5 is a float in TOML; say how to write the number instead.
+        bounds = _bounds(err["loc"])
+        note = f" ({LIMIT_NOTES[key]})" if key in LIMIT_NOTES else ""
+        return f"an integer{' ' + bounds if bounds else ''}, written without a decimal point or exponent{note}"
     msg = err["msg"]
     for prefix in ("Input should be ", "String should "):
-        if msg.startswith(prefix):
-            msg = msg[len(prefix):]
+        msg = msg.removeprefix(prefix)
+    for theirs, ours in _WORDING:
+        if msg.startswith(theirs):
+            msg = ours + msg[len(theirs):]
+            break
+    note = LIMIT_NOTES.get(key)
+    if note and kind in ("less_than_equal", "less_than"):
+        msg += f" ({note})"
     return msg
 
 
 def _where(source: str, key: str, overridden: set[str]) -> str:
     """Name the override when the bad key came from ``--set``, else the file."""
-    if any(o == key or o.startswith(key + ".") or key.startswith(o + ".") for o in overridden):
+    base = key.split("[", 1)[0]
+    if any(o == base or o.startswith(base + ".") or base.startswith(o + ".") for o in overridden):
         return f"--set {key}"
     return f"{source}: {key}"
+
+
+def locate(exc: ConfigError, source: str, overridden: set[str] | None = None) -> ConfigError:
+    """``exc`` with the file (or ``--set``) in front of a bare dotted key.
+
+    Checks that run on the parts built from a config (cell models, levelers,
+    the erase pool) know the key but not the file; every path from a user's
+    file passes their errors through here.  An error that already names its
+    place is returned as it is.
+    """
+    where = exc.where
+    section = where.split(".", 1)[0]
+    if ":" in where or where.startswith("--") or section not in RunConfig.model_fields:
+        return exc
+    return type(exc)(_where(source, where, overridden or set()), exc.found, exc.allowed)
+
+
+def source_name(source: Any) -> str:
+    """How errors name a config source: its path, or what kind of object it was."""
+    if isinstance(source, RunConfig):
+        return "<config>"
+    if isinstance(source, Mapping):
+        return "<dict>"
+    if source is None:
+        return "<defaults>"
+    return str(source)
 
 
 def validate(data: dict, source: str = "<config>", overridden: set[str] | None = None) -> RunConfig:
     """Validate a plain dict into a :class:`RunConfig` or raise one ConfigError."""
     overridden = overridden or set()
     data = copy.deepcopy(data)
+    for section, values in data.items():
+        if section in RunConfig.model_fields and not isinstance(values, dict):
+            raise ConfigError(_where(source, section, overridden), repr(values), f"a table [{section}]")
     cell = data.get("cell")
     if isinstance(cell, dict) and "preset" in cell:
         name = cell["preset"]
@@ -103,13 +191,20 @@ def validate(data: dict, source: str = "<config>", overridden: set[str] | None =
         cfg = RunConfig.model_validate(data)
     except ValidationError as exc:
         err = exc.errors()[0]
-        key = ".".join(str(p) for p in err["loc"]) or "(top level)"
+        if err["type"] in ("extra_forbidden", "missing"):
+            key = ".".join(str(p) for p in err["loc"]) or "(top level)"
+        else:
+            key = _key_of(err["loc"])
         found = repr(err.get("input")) if err["type"] != "missing" else "nothing"
         if err["type"] == "extra_forbidden":
             found = f"unknown key '{err['loc'][-1]}'"
-        raise ConfigError(_where(source, key, overridden), found, _allowed(err)) from None
+        raise ConfigError(_where(source, key, overridden), found, _allowed(err, key)) from None
     check_consistency(cfg, source, overridden)
     return cfg
+
+
+# Per-level cell fields: one number, or exactly one value per level.
+PER_LEVEL = ("program_sigma_decades", "pv_mean_iterations", "pulse_ns", "pulse_pj", "drift_nu")
 
 
 def check_consistency(cfg: RunConfig, source: str, overridden: set[str]) -> None:
@@ -128,6 +223,11 @@ def check_consistency(cfg: RunConfig, source: str, overridden: set[str]) -> None
     if cfg.write.word_bits > a.line_bytes * 8:
         raise ConfigError(_where(source, "write.word_bits", overridden), str(cfg.write.word_bits),
                           f"at most the line size in bits ({a.line_bytes * 8})")
+    if a.lines * a.line_bytes > MAX_MODELED_BYTES:
+        raise ConfigError(_where(source, "array.lines", overridden), f"{a.lines} lines of {a.line_bytes} bytes",
+                          f"at most {MAX_MODELED_BYTES >> 30} GiB of modeled lines (array.lines x "
+                          "array.line_bytes; every modeled line is held in memory with its state; "
+                          "array.capacity_gib scales results to a larger device)")
     if cfg.footprint > a.lines:
         raise ConfigError(_where(source, "workload.footprint_lines", overridden),
                           str(cfg.workload.footprint_lines), f"at most array.lines ({a.lines})")
@@ -138,15 +238,76 @@ def check_consistency(cfg: RunConfig, source: str, overridden: set[str]) -> None
         if a.bank_budget_ua < cfg.cell.reset_ua:
             raise ConfigError(_where(source, f"array.{key}", overridden), str(a.bank_budget_ua),
                               f"at least cell.reset_ua ({cfg.cell.reset_ua}) so one cell can be reset")
+    w = cfg.workload
+    if w.hint_lead_ns > 0 and w.arrival == "closed":
+        # Closed-loop arrival times are decided while running; a hint cannot precede them.
+        raise ConfigError(_where(source, "workload.hint_lead_ns", overridden), f"{w.hint_lead_ns} with "
+                          "workload.arrival = 'closed'",
+                          "0 with closed arrivals (hints need arrival times: poisson, fixed or onoff)")
+    cell = cfg.cell
+    n = 3 if cell.tri_level else 1 << cell.bits_per_cell
+    verified = cell.bits_per_cell > 1 or cell.tri_level or cell.technology != "pcm"
+    if c.write_pause and verified:
+        # Pausing is modelled between the SET/RESET rounds of single-level PCM
+        # writes; a program-and-verify write (multi-level or tri-level cells,
+        # ReRAM, STT-MRAM) is one sequence that would ignore the switch.
+        cause = next(k for k, on in (("cell.bits_per_cell", cell.bits_per_cell > 1),
+                                     ("cell.tri_level", cell.tri_level),
+                                     ("cell.technology", cell.technology != "pcm")) if on)
+        key = "controller.write_pause" if "controller.write_pause" in overridden or \
+            cause not in overridden else cause
+        found = {"cell.bits_per_cell": f"cell.bits_per_cell = {cell.bits_per_cell}",
+                 "cell.tri_level": "cell.tri_level = true",
+                 "cell.technology": f"cell.technology = {cell.technology!r}"}[cause]
+        raise ConfigError(_where(source, key, overridden), f"write_pause = true with {found}",
+                          "write_pause only with single-level PCM cells (bits_per_cell = 1, "
+                          "tri_level = false, technology = 'pcm')")
+
+    def level_key(name: str) -> str:
+        # A level count changed by --set is the thing to blame for a list left from the file.
+        if "cell.bits_per_cell" in overridden and f"cell.{name}" not in overridden:
+            return "--set cell.bits_per_cell"
+        return _where(source, f"cell.{name}", overridden)
+
+    if len(cell.level_log10_ohm) != n:
+        raise ConfigError(level_key("level_log10_ohm"),
+                          f"{len(cell.level_log10_ohm)} values",
+                          f"{n} values, one per level of " + (
+                              "tri-level cells" if cell.tri_level else
+                              f"cell.bits_per_cell = {cell.bits_per_cell}"))
+    th = cell.read_thresholds_log10_ohm
+    if th is not None and len(th) != n - 1:
+        raise ConfigError(level_key("read_thresholds_log10_ohm"), f"{len(th)} values",
+                          f"{n - 1} values, one between each two of the {n} levels")
+    for name in PER_LEVEL:
+        value = getattr(cell, name)
+        if isinstance(value, list) and len(value) != n:
+            raise ConfigError(level_key(name), f"{len(value)} values {value}",
+                              f"one number or {n} values (one per level of " + (
+                                  "tri-level cells)" if cell.tri_level else
+                                  f"cell.bits_per_cell = {cell.bits_per_cell})"))
 
 
 def read_toml(path: str | Path) -> dict:
+    """Parse a TOML file; a UTF-8 byte-order mark at its start is allowed."""
     p = Path(path)
     try:
-        with p.open("rb") as fh:
-            return tomllib.load(fh)
+        raw = p.read_bytes()
     except FileNotFoundError:
-        raise ConfigError(str(p), "no such file", "a path to a TOML run config") from None
+        raise ConfigError(str(p), "no such file", "a path to a TOML file") from None
+    except IsADirectoryError:
+        raise ConfigError(str(p), "a folder", "a path to a TOML file") from None
+    except OSError as exc:
+        raise ConfigError(str(p), f"a file that cannot be read ({exc.strerror})",
+                          "a readable TOML file") from None
+    try:
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        line = raw[:exc.start].count(b"\n") + 1
+        raise ConfigError(f"{p}:{line}", f"the byte 0x{raw[exc.start]:02x}, which is not UTF-8",
+                          "UTF-8 text (save the file as UTF-8)") from None
+    try:
+        return tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise ConfigError(str(p), f"invalid TOML ({exc})", "TOML syntax") from None
 
@@ -164,14 +325,15 @@ def load_config(
     overrides:
         ``{"section.key": value}`` or a list of ``"section.key=value"`` strings.
     """
+    name = source_name(source)
     if isinstance(source, RunConfig):
-        data, name = source.model_dump(), "<config>"
+        data = source.model_dump()
     elif isinstance(source, Mapping):
-        data, name = copy.deepcopy(dict(source)), "<dict>"
+        data = copy.deepcopy(dict(source))
     elif source is None:
-        data, name = {}, "<defaults>"
+        data = {}
     else:
-        data, name = read_toml(source), str(source)
+        data = read_toml(source)
     items: list[tuple[str, Any]] = []
     if isinstance(overrides, Mapping):
         items = list(overrides.items())

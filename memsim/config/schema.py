@@ -4,14 +4,24 @@ Every field has a default and a unit (in its name or its description).  The
 sections are ``run``, ``cell``, ``array``, ``controller``, ``write`` and
 ``workload``; unknown keys are rejected.  Cell defaults come from the SLC
 preset data file so the numbers (and their sources) live in one place.
+
+Types are strict (pydantic strict mode) where a loose reading would give a
+silently wrong run: an integer field takes integers only (not ``true``, not
+``1e5``), a switch takes only ``true``/``false``, a number field takes no
+``true``/``false`` or string, and no number field takes NaN or an infinity
+(none of them has a meaning for infinity; a field that some day needs it must
+say so in its description and opt out).  Sizes that cannot fit in memory or
+run in sane time are bounded here, before anything runs.
 """
 from __future__ import annotations
 
+import math
 import tomllib
 from importlib import resources
-from typing import Literal
+from typing import Annotated, Any, Literal
 
-from pydantic import BaseModel, ConfigDict, Field
+from pydantic import BaseModel, BeforeValidator, ConfigDict, Field
+from pydantic_core import PydanticCustomError
 
 
 def preset_path(name: str):
@@ -32,8 +42,83 @@ def load_preset(name: str) -> dict:
 _SLC = load_preset("pcm_slc")["cell"]
 
 
+def _whole(value: Any) -> Any:
+    """Refuse booleans for an integer choice (``Literal[1, 2, 3]`` would take ``true`` as 1)."""
+    if isinstance(value, bool):
+        raise PydanticCustomError("int_type", "an integer (not true/false)")
+    return value
+
+
+# The two integer choices: a Literal lets True through as 1 even in strict mode.
+WholeChoice = BeforeValidator(_whole)
+
+
+def _levels(lo: float, strict_lo: bool):
+    """One number for every level, or a list with one number per level, each ``> lo`` (or ``>= lo``).
+
+    The per-level length is checked against ``cell.bits_per_cell`` after the
+    whole config is read (see ``memsim.config.load.check_consistency``).
+    """
+    bound = f"> {lo:g}" if strict_lo else f">= {lo:g}"
+
+    def check(value: Any) -> Any:
+        items = value if isinstance(value, list) else [value]
+        if isinstance(value, list) and not value:
+            raise PydanticCustomError("level_values", "one number, or a list with one number per level")
+        for v in items:
+            ok = isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v) and (
+                v > lo if strict_lo else v >= lo)
+            if not ok:
+                raise PydanticCustomError(
+                    "level_values", "finite numbers {bound} (one, or one per level); {bad} is not",
+                    {"bound": bound, "bad": repr(v)})
+        return [float(v) for v in value] if isinstance(value, list) else float(value)
+
+    return BeforeValidator(check)
+
+
+PerLevelPositive = Annotated[float | list[float], _levels(0.0, True)]
+PerLevelNonNegative = Annotated[float | list[float], _levels(0.0, False)]
+PerLevelAtLeastOne = Annotated[float | list[float], _levels(1.0, False)]
+
+# The largest run the timing engine takes: every request keeps its arrival,
+# finish and latency (25 bytes) until the summary, and the engine serves
+# roughly 10^5 requests per second (measured on the demo config), so 5e7
+# requests is about 1.3 GB and ten minutes or so.
+MAX_REQUESTS = 50_000_000
+# The wear engine fast-forwards roughly 10^7 writes per second (measured on
+# workloads/lifetime_tide_archive.toml); 1e10 writes is a long but finite run.
+MAX_WINDOW_WRITES = 10_000_000_000
+# Times beyond a day of simulated time between two events are not a memory
+# workload; they only push the clock towards overflow.
+MAX_GAP_NS = 86_400e9
+# Content of the modeled lines (array.lines x array.line_bytes) a run may hold:
+# the write path keeps it with per-line state of a few hundred bytes more per
+# line (measured: about 3 GB for 4 Mi lines of 64 bytes).
+MAX_MODELED_BYTES = 1 << 30
+# Longest hint lead: the trace reader's default bound on how far a hint may
+# run ahead (memsim.workload.trace_format.DEFAULT_MAX_LEAD_NS), so a trace made
+# from the config replays; longer leads make the generator hold every request
+# in between.
+MAX_LEAD_NS = 1e6
+# A kiloampere: far beyond any chip, small enough that cells per round stay machine integers.
+MAX_CURRENT_UA = 1e9
+# Why a bound is there, appended to the one-line error that quotes it.
+LIMIT_NOTES = {
+    "run.chunk_requests": "each chunk of requests is held in memory with its write content",
+    "workload.requests": "every request's latency is kept in memory; use more seeds or a sweep for more",
+    "lifetime.window_writes": "a longer window would run for hours",
+    "workload.interval_ns": "a day of simulated time",
+    "workload.on_ns": "a day of simulated time",
+    "workload.off_ns": "a day of simulated time",
+    "workload.hint_lead_ns": "the longest lead a trace replays",
+}
+
+
 class Section(BaseModel):
-    model_config = ConfigDict(extra="forbid", validate_assignment=True)
+    # strict: no bool for a number, no number for a bool, no float for an int.
+    # allow_inf_nan=False: NaN and infinities are refused in every float field.
+    model_config = ConfigDict(extra="forbid", validate_assignment=True, strict=True, allow_inf_nan=False)
 
 
 class RunSection(Section):
@@ -41,7 +126,8 @@ class RunSection(Section):
                       pattern=r"^[A-Za-z0-9_.-]+$")
     seed: int = Field(1, ge=0, description="Seed of every random draw of the run.")
     out_dir: str = Field("results", description="Folder that receives the results folder.")
-    chunk_requests: int = Field(65536, ge=1024, description="Requests generated per chunk.")
+    chunk_requests: int = Field(65536, ge=1024, le=1 << 22,
+                                description="Requests generated per chunk (memory grows with it).")
 
 
 class CellSection(Section):
@@ -64,28 +150,28 @@ class CellSection(Section):
     endurance_dist: Literal["normal", "lognormal"] = Field(
         "normal", description="Distribution of cell endurance.")
     # Multi-level cells and drift (see memsim/tech/mlc.py, memsim/tech/drift.py).
-    bits_per_cell: Literal[1, 2, 3] = Field(1, description="Bits stored per cell (1 = SLC).")
+    bits_per_cell: Annotated[Literal[1, 2, 3], WholeChoice] = Field(1, description="Bits stored per cell (1 = SLC).")
     tri_level: bool = Field(False, description="Tri-level cells: three levels per cell, two cells per "
                                                "3-bit word (bits_per_cell is then not used).")
     level_log10_ohm: list[float] = Field(_SLC["level_log10_ohm"],
                                          description="Target log10 resistance per level, ohm, lowest first.")
     read_thresholds_log10_ohm: list[float] | None = Field(
         None, description="Read thresholds, log10 ohm; none = midpoints.")
-    program_sigma_decades: float | list[float] = Field(
-        _SLC["program_sigma_decades"], gt=0, description="Spread of log10 R after programming, decades.")
+    program_sigma_decades: PerLevelPositive = Field(
+        _SLC["program_sigma_decades"], description="Spread of log10 R after programming, decades.")
     verify_band_sigma: float | None = Field(
         _SLC["verify_band_sigma"], gt=0, description="Program-and-verify keeps R0 within this many sigma.")
     pv_model: Literal["geometric", "poisson"] = Field("geometric",
                                                       description="Iterations-per-write model.")
-    pv_mean_iterations: float | list[float] = Field(1.0, description="Mean program-and-verify iterations per level.")
-    pv_max_iterations: int = Field(16, ge=1, description="Cap on program-and-verify iterations.")
-    pulse_ns: float | list[float] | None = Field(
+    pv_mean_iterations: PerLevelAtLeastOne = Field(1.0, description="Mean program-and-verify iterations per level.")
+    pv_max_iterations: int = Field(16, ge=1, le=1024, description="Cap on program-and-verify iterations.")
+    pulse_ns: PerLevelNonNegative | None = Field(
         None, description="Programming pulse per level, ns; none = SET pulse for the lowest level, "
                           "RESET pulse for the others.")
-    pulse_pj: float | list[float] | None = Field(None, description="Energy per pulse per level, pJ.")
+    pulse_pj: PerLevelNonNegative | None = Field(None, description="Energy per pulse per level, pJ.")
     verify_ns: float | None = Field(None, ge=0, description="Verify read per iteration, ns; none = read_ns.")
     verify_pj: float | None = Field(None, ge=0, description="Verify energy per cell, pJ; none = read_pj.")
-    drift_nu: float | list[float] = Field(_SLC["drift_nu"], description="Mean drift exponent per level.")
+    drift_nu: PerLevelNonNegative = Field(_SLC["drift_nu"], description="Mean drift exponent per level.")
     drift_nu_rel_sd: float = Field(_SLC["drift_nu_rel_sd"], ge=0,
                                    description="Spread of the drift exponent, fraction of its mean.")
     drift_t0_s: float = Field(1.0, gt=0, description="Reference time of the drift law, s.")
@@ -120,12 +206,12 @@ class ArraySection(Section):
     lines: int = Field(65536, ge=16, le=1 << 26,
                        description="Lines modeled with their content (the modeled capacity).")
     bank_hash: bool = Field(False, description="XOR row bits into the bank index.")
-    row_lines: int = Field(0, ge=0, description="Lines per row buffer; 0 = no row buffer.")
+    row_lines: int = Field(0, ge=0, le=1 << 26, description="Lines per row buffer; 0 = no row buffer.")
     row_hit_ns: float = Field(10.0, gt=0, description="Read latency on a row-buffer hit, ns.")
     burst_ns: float = Field(5.0, ge=0, description="Data-bus time to move one line, ns.")
-    bank_budget_ua: float = Field(38400.0, gt=0,
+    bank_budget_ua: float = Field(38400.0, gt=0, le=MAX_CURRENT_UA,
                                   description="Programming current a bank may draw at once, uA.")
-    capacity_gib: float = Field(16.0, gt=0,
+    capacity_gib: float = Field(16.0, gt=0, le=1 << 20,
                                 description="Device capacity the modeled lines stand for, GiB "
                                             "(used to scale lifetime).")
 
@@ -151,7 +237,7 @@ class WriteSection(Section):
     scheme: str = Field("data_comparison",
                         description="Write scheme: full_line, data_comparison, flip_n_write or "
                                     "block_erase.")
-    word_bits: Literal[8, 16, 32, 64] = Field(32, description="Flip-N-Write word width, bits.")
+    word_bits: Annotated[Literal[8, 16, 32, 64], WholeChoice] = Field(32, description="Flip-N-Write word width, bits.")
 
 
 class WorkloadSection(Section):
@@ -166,7 +252,9 @@ class WorkloadSection(Section):
     attack_line: int = Field(0, ge=0, description="Line hammered by repeated_address.")
     burst: int = Field(1000, ge=1, description="Writes per hammered line (birthday_attack).")
     hot_lines: int = Field(16, ge=1, description="Size of the hot set (hot_set).")
-    requests: int = Field(100_000, ge=1, description="Requests to issue (in lines).")
+    requests: int = Field(100_000, ge=1, le=MAX_REQUESTS,
+                          description="Requests to issue (in lines); at most 5e7 per run (use seeds "
+                                      "or a sweep for more).")
     read_fraction: float = Field(0.7, ge=0, le=1, description="Share of requests that are reads.")
     footprint_lines: int = Field(0, ge=0, description="Lines touched; 0 = all modeled lines.")
     size_lines: int = Field(1, ge=1, le=64, description="Consecutive lines per request.")
@@ -176,11 +264,11 @@ class WorkloadSection(Section):
     stride_lines: int = Field(1, ge=1, description="Stride in lines (pattern strided).")
     arrival: Literal["poisson", "fixed", "onoff", "closed"] = Field(
         "poisson", description="Arrival process; closed = a fixed number outstanding.")
-    interval_ns: float = Field(50.0, gt=0, description="Mean time between arrivals, ns.")
-    on_ns: float = Field(20_000.0, gt=0, description="Mean burst length (arrival onoff), ns.")
-    off_ns: float = Field(20_000.0, gt=0, description="Mean idle gap (arrival onoff), ns.")
+    interval_ns: float = Field(50.0, gt=0, le=MAX_GAP_NS, description="Mean time between arrivals, ns.")
+    on_ns: float = Field(20_000.0, gt=0, le=MAX_GAP_NS, description="Mean burst length (arrival onoff), ns.")
+    off_ns: float = Field(20_000.0, gt=0, le=MAX_GAP_NS, description="Mean idle gap (arrival onoff), ns.")
     outstanding: int = Field(16, ge=1, description="Requests in flight (arrival closed).")
-    hint_lead_ns: float = Field(0.0, ge=0, description="Announce every write by a hint this long "
+    hint_lead_ns: float = Field(0.0, ge=0, le=MAX_LEAD_NS, description="Announce every write by a hint this long "
                                                        "before it, ns; 0 = no hints.")
     data: Literal["random", "flip", "zeros", "ones"] = Field(
         "random", description="Data model of written content.")
@@ -212,9 +300,10 @@ class LifetimeSection(Section):
     capacity_loss: float = Field(0.0, ge=0, lt=1,
                                  description="End of life at this share of lines dead; 0 = first dead line.")
     endurance_scale: float = Field(1e4, ge=1, description="Run to failure: endurance divided by this.")
-    write_rate_gbps: float = Field(0.0, ge=0, description="Write rate for years, GB/s; 0 = from the run.")
-    window_writes: int = Field(0, ge=0, description="User writes the wear engine measures; 0 = "
-                                                   "workload.requests.")
+    write_rate_gbps: float = Field(0.0, ge=0, le=1e6, description="Write rate for years, GB/s; 0 = from the run.")
+    window_writes: int = Field(0, ge=0, le=MAX_WINDOW_WRITES,
+                               description="User writes the wear engine measures (at most 1e10); 0 = "
+                                           "workload.requests.")
 
 
 class RefreshSection(Section):
@@ -224,7 +313,8 @@ class RefreshSection(Section):
                             "age), scrub (a read that sees more than scrub_errors errors rewrites the line).")
     interval_s: float = Field(3600.0, gt=0, description="Refresh period of the periodic policy, s.")
     temperature_k: float = Field(300.0, gt=0, description="Operating temperature, K.")
-    correctable_bits: int = Field(8, ge=0, description="Bit errors the line ECC corrects.")
+    correctable_bits: int = Field(8, ge=0, le=2048,
+                                 description="Bit errors the line ECC corrects (at most the bits of a line).")
     max_fail_prob: float = Field(1e-9, gt=0, lt=1,
                                  description="Target probability that a line is uncorrectable at refresh.")
     fail_model: Literal["binomial", "exact"] = Field("binomial", description="Line failure model.")
@@ -251,7 +341,7 @@ class EraseSection(Section):
 
 
 class PowerSection(Section):
-    budget_ua: float = Field(0.0, ge=0, description="Programming current the scope may draw at once, uA; "
+    budget_ua: float = Field(0.0, ge=0, le=MAX_CURRENT_UA, description="Programming current the scope may draw at once, uA; "
                                                     "0 = only the per-bank budget.")
     scope: Literal["channel", "device"] = Field("device", description="What shares the budget.")
 

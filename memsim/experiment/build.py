@@ -7,7 +7,7 @@ import numpy as np
 
 from memsim.config import RunConfig
 from memsim.errors import ConfigError, TraceError
-from memsim.policy.leveling import Leveler, leveler_params, make_leveler
+from memsim.policy.leveling import Leveler, leveler_names, leveler_params, make_leveler
 from memsim.policy.write import SCHEMES, make_scheme
 from memsim.policy.writepath import WritePath
 from memsim.tech.mlc_write import MlcProgrammer
@@ -22,6 +22,9 @@ from memsim.workload.trace import TraceReader, read_trace
 def leveler_kwargs(cfg: RunConfig, name: str | None = None) -> dict:
     """Config fields of ``[leveling]`` that scheme ``name`` takes."""
     lv = cfg.leveling
+    if name is None and lv.scheme == "bit_rotation" and lv.inner != "none" and lv.inner not in leveler_names():
+        raise ConfigError("leveling.inner", repr(lv.inner), "none or one of " + ", ".join(
+            n for n in leveler_names() if n not in ("bit_rotation", "none")))
     name = name or lv.scheme
     accepted = leveler_params(name)
     kw: dict = {}
@@ -49,6 +52,8 @@ def check_names(cfg: RunConfig, where_prefix: str = "") -> None:
     if cfg.write.scheme not in SCHEMES:
         raise ConfigError(f"{where_prefix}write.scheme", repr(cfg.write.scheme),
                           "one of " + ", ".join(SCHEMES))
+    if cfg.leveling.scheme not in leveler_names():
+        raise ConfigError("leveling.scheme", repr(cfg.leveling.scheme), "one of " + ", ".join(leveler_names()))
     if SCHEMES[cfg.write.scheme].out_of_place and cfg.leveling.scheme != "none":
         raise ConfigError("leveling.scheme", repr(cfg.leveling.scheme),
                           "none with write.scheme block_erase (its block pool remaps lines itself)")

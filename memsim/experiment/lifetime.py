@@ -597,7 +597,9 @@ def write_stream(cfg: RunConfig, seed: np.random.SeedSequence,
 
         yield from trace_writes(cfg, endless=True)
         return
-    wl = cfg.workload.model_copy(update={"arrival": "closed", "requests": 1 << 62})
+    # No hints: they name no new line, and without arrival times they would be
+    # held back for ever.
+    wl = cfg.workload.model_copy(update={"arrival": "closed", "requests": 1 << 62, "hint_lead_ns": 0.0})
     source = SyntheticSource(wl, cfg.footprint, np.random.default_rng(seed), chunk)
     for c in source:
         yield c.line[c.op == WRITE]

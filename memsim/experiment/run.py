@@ -12,9 +12,12 @@ import numpy as np
 
 from memsim import __version__
 from memsim.config import RunConfig, load_config
+from memsim.config.load import locate, source_name
 from memsim.engine.refresh_agent import RefreshAgent
 from memsim.engine.timing import TimingEngine, TimingTotals
-from memsim.experiment.build import build_path, build_source, check_names, source_fields
+from memsim.errors import ConfigError
+from memsim.experiment.build import build_path, build_source, source_fields
+from memsim.experiment.checks import check_parts
 from memsim.experiment.lifetime import lifetime_fields
 from memsim.metrics.result import RunResult, latency_histogram, latency_stats
 from memsim.policy.refresh import check_refresh_load, plan_refresh
@@ -31,7 +34,10 @@ def resolve(config: str | Path | Mapping | RunConfig | None, overrides: Mapping[
     """
     ov = {k.replace("__", "."): v for k, v in (overrides or {}).items()}
     cfg = load_config(config, ov)
-    check_names(cfg, "--set " if "write.scheme" in ov else "")
+    try:
+        check_parts(cfg)
+    except ConfigError as exc:
+        raise locate(exc, source_name(config), set(ov)) from None
     return cfg
 
 

@@ -32,6 +32,7 @@ finish and a grown grid reuses every point it shares with the old one.
 """
 from __future__ import annotations
 
+import difflib
 import itertools
 import json
 import re
@@ -47,7 +48,7 @@ from memsim.config import RunConfig
 from memsim.config.load import read_toml
 from memsim.errors import ConfigError, UserError
 from memsim.experiment.cache import RunCache, config_key, table_from_entry, write_frame
-from memsim.experiment.executors import Task, error_line, make_executor
+from memsim.experiment.executors import Task, make_executor
 from memsim.metrics.files import atomic_write_text, dumps, save_or_rescue
 from memsim.metrics.stats import summarize
 
@@ -139,7 +140,7 @@ def _value_lists(table: Mapping[str, Any], where: str, same_length: bool = False
         check_key(key, w)
         if not isinstance(vals, list) or not vals:
             raise ConfigError(w, repr(vals), "a non-empty list of values")
-        if any(isinstance(v, (list, dict)) for v in vals):
+        if not all(isinstance(v, (bool, int, float, str)) for v in vals):
             raise ConfigError(w, repr(vals), "a list of plain values (numbers, strings, booleans)")
         if len({json.dumps(v) for v in vals}) != len(vals):
             raise ConfigError(w, repr(vals), "distinct values (a repeated value would repeat a point)")
@@ -207,6 +208,10 @@ def make_spec(base: Any = None, grid: Mapping[str, Any] | None = None, *,
         metrics = list(dict.fromkeys(metrics))
     if isinstance(tables, str) or not all(isinstance(t, str) for t in tables):
         raise ConfigError(f"{source}: sweep.tables", repr(tables), "a list of table names")
+    if not grid_l and not zipped_l:
+        raise ConfigError(f"{source}: grid", "no key to vary (an empty [grid] and no [[zipped]])",
+                          "at least one key with a list of values; a one-value list such as "
+                          "write.scheme = [\"flip_n_write\"] runs one point over the seeds")
     return SweepSpec(name=name, base=base, grid=grid_l, zipped=zipped_l, fixed=fixed_d, seeds=seed_list,
                      base_seed=base_seed, metrics=metrics, tables=tuple(tables), source=source)
 
@@ -276,40 +281,87 @@ class SweepOutcome:
     save_error: str = ""                # why the results are not (all) where asked, if so
 
 
-def plan(spec: SweepSpec) -> tuple[list[dict[str, Any]], list[Task | None], list[str]]:
-    """Rows (point, seed, varied values), one task per row, and the config errors of rows.
+def plan(spec: SweepSpec) -> tuple[list[dict[str, Any]], list[Task], list[str]]:
+    """Rows (point, seed, varied values), one task per row, and an empty error per row.
 
-    A point whose config is invalid gets no task and its one-line error.
+    Every point is resolved and validated here, before any runs: the first
+    invalid point raises its ConfigError, naming the sweep file and the key.
     """
     from memsim.experiment.run import resolve
 
     rows: list[dict[str, Any]] = []
-    tasks: list[Task | None] = []
-    errors: list[str] = []
+    tasks: list[Task] = []
     section = {k: "grid" for k in spec.grid} | {k: "zipped" for g in spec.zipped for k in g}
     for p, values in enumerate(spec.points()):
         try:
             # JSON types, so the task travels to any executor and hashes the same way.
             cfg = resolve(spec.base, {**spec.fixed, **values}).model_dump(mode="json")
-            err = ""
         except ConfigError as exc:
             key = exc.where[6:] if exc.where.startswith("--set ") else ""
-            cfg, err = None, error_line(_rewhere(exc, spec.source, section.get(key, "fixed")))
+            err = _rewhere(exc, spec.source, section.get(key, "fixed"))
+            if not err.where.startswith(spec.source):
+                # Blamed on the base config: say which point of the sweep brought it out.
+                point = ", ".join(f"{k} = {v!r}" for k, v in values.items())
+                err = ConfigError(f"{spec.source}: point {p} ({point}): {err.where}", err.found, err.allowed)
+            raise err from None
         for seed in spec.seeds:
             rows.append({"point": p, "seed": seed, **values})
-            if cfg is None:
-                tasks.append(None)
-            else:
-                c = {**cfg, "run": {**cfg["run"], "seed": seed}}
-                tasks.append(Task(config_key(c), c, spec.tables))
-            errors.append(err)
-    return rows, tasks, errors
+            c = {**cfg, "run": {**cfg["run"], "seed": seed}}
+            tasks.append(Task(config_key(c), c, spec.tables))
+    return rows, tasks, [""] * len(rows)
+
+
+def check_metrics(spec: SweepSpec, tasks: Sequence[Task], probe_points: int = 16) -> None:
+    """Raise a ConfigError naming ``sweep.metrics`` when a requested metric is no summary key.
+
+    The summary keys come from short runs (at most 2,000 requests) of the
+    sweep's points, taken in order until every requested name has turned up;
+    a point's kind (write scheme, refresh policy, ...) decides its keys, not
+    its length.  After ``probe_points`` distinct points without a verdict the
+    check is left to the end of the sweep.
+    """
+    from memsim.experiment.run import simulate
+
+    if not spec.metrics:
+        return
+    wanted, known = set(spec.metrics), []
+    seen: set[str] = set()
+    for t in tasks:
+        if t.key in seen:
+            continue
+        seen.add(t.key)
+        if len(seen) > probe_points:
+            return
+        cfg = json.loads(json.dumps(t.config))
+        wl = cfg["workload"]
+        wl["requests"] = min(int(wl["requests"]), 2000)
+        try:
+            summary = simulate(cfg).summary
+        except Exception:  # noqa: BLE001 - the real run reports its own failure
+            return
+        known.extend(k for k in summary if k not in known)
+        if wanted <= set(known):
+            return
+    missing = [m for m in spec.metrics if m not in known]
+    raise ConfigError(f"{spec.source}: sweep.metrics", ", ".join(map(repr, missing)), metric_hint(missing, known))
+
+
+def metric_hint(missing: Sequence[str], known: Sequence[str]) -> str:
+    """A short 'allowed' for unknown metric names: the closest summary keys, not all of them."""
+    close = list(dict.fromkeys(c for m in missing for c in difflib.get_close_matches(m, known, n=3, cutoff=0.5)))
+    shown = close or list(known[:5])
+    return (f"summary keys such as {', '.join(shown)} ({len(known)} in all; "
+            "memsim run prints them)")
 
 
 def run_sweep(spec: SweepSpec, *, workers: int | None = None, scheduler: str | None = None,
               out: str | Path | None = None, progress: bool | None = None,
-              level: float = 0.95) -> SweepOutcome:
+              level: float = 0.95, check: bool = True) -> SweepOutcome:
     """Run every point x seed of ``spec``; cache and write results when ``out`` is given.
+
+    Every point is validated before any run starts (the first invalid one
+    raises its ConfigError), and, with ``check``, the names of
+    ``sweep.metrics`` are checked against the keys of short probe runs.
 
     Parameters
     ----------
@@ -330,6 +382,8 @@ def run_sweep(spec: SweepSpec, *, workers: int | None = None, scheduler: str | N
         raise UserError("--workers", repr(workers), "a whole number >= 1")
     rows, tasks, errors = plan(spec)
     folder = Path(out) if out is not None else None
+    if check:
+        check_metrics(spec, tasks)
     cache = RunCache(folder / "cache") if folder is not None else None
     entries: dict[str, dict[str, Any]] = {}
     if cache is not None:
@@ -398,7 +452,7 @@ def assemble(spec: SweepSpec, rows: list[dict], tasks: list[Task | None], errors
         missing = [m for m in spec.metrics if m not in known]
         if missing and known:
             raise ConfigError(f"{spec.source}: sweep.metrics", ", ".join(map(repr, missing)),
-                              "summary keys: " + ", ".join(known))
+                              metric_hint(missing, known))
         metrics = list(spec.metrics)
     table = []
     for row, s, err, t in zip(rows, summaries, errors, tasks):
@@ -517,6 +571,12 @@ def sweep(base: Any = None, grid: Mapping[str, Sequence[Any]] | None = None, *,
     ``error`` (empty when the run succeeded) and ``key`` (the cache key).
     ``df.attrs`` holds ``name``, ``varied`` and ``metrics``; pass it to
     :func:`point_stats` for means and confidence intervals.
+
+    Raises
+    ------
+    ConfigError
+        Before any run: an invalid point, an unknown metric name, or a sweep
+        that varies nothing.
     """
     spec = make_spec(base, grid, seeds=seeds, zipped=zipped, fixed=fixed, metrics=metrics,
                      tables=tables, name=name, base_seed=base_seed)

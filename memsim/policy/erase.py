@@ -178,6 +178,11 @@ class BlockPool:
         self.n_blocks = math.ceil(self.n_logical / (1.0 - self.spare_fraction) / B - 1e-9)
         # Two frontiers, the watermark and one block of slack for stale lines.
         need = data_blocks + self.low_watermark + 3
+        if self.n_blocks < need and B > self.n_logical:
+            # No spare share can help a block larger than the lines it organizes.
+            raise ConfigError(
+                "erase.block_lines", repr(block_lines),
+                f"at most the {self.n_logical} lines a bank holds (with a few blocks of them spare)")
         if self.n_blocks < need:
             raise ConfigError(
                 "erase.spare_fraction", repr(spare_fraction),

@@ -130,7 +130,9 @@ def trace_info(path: str | os.PathLike[str] | TraceReader, *, line_bytes: int = 
     longer trace only that prefix is analysed, which overstates first-touch
     (cold) accesses: ``reuse_sampled`` says whether this happened.
 
-    Keys: ``requests``, ``reads``, ``writes``, ``hints`` and their
+    Keys: ``rows`` (well-formed trace rows), ``requests`` (line requests: a
+    row of ``size_lines`` n asks for n lines; also under ``line_requests``),
+    ``reads``, ``writes``, ``hints`` (line requests of each kind) and their
     ``*_fraction``; ``footprint_lines`` (distinct lines named by any request)
     and ``footprint_bytes``; ``first_time_ns``, ``last_time_ns``, ``span_ns``;
     ``request_rate_per_s`` (requests over the span); ``bad_lines`` (skipped
@@ -164,7 +166,9 @@ def trace_info(path: str | os.PathLike[str] | TraceReader, *, line_bytes: int = 
     dist = reuse_distances(np.concatenate(window) if window else np.zeros(0, np.int64))
     lines = distinct.count()
     info: dict[str, float | int | bool] = {
+        "rows": int(reader.rows - reader.bad_lines),
         "requests": total,
+        "line_requests": total,
         "reads": int(counts[READ]), "writes": int(counts[WRITE]), "hints": int(counts[HINT]),
         "read_fraction": float(counts[READ] / total) if total else np.nan,
         "write_fraction": float(counts[WRITE] / total) if total else np.nan,
