@@ -89,6 +89,9 @@ CONFIGS = [
     # write_pause is modelled for SLC writes only
     ('[cell]\npreset = "pcm_mlc2"\n[controller]\nwrite_pause = true\n', "run", "controller.write_pause"),
     ('[cell]\npreset = "stt_mram"\n[controller]\nwrite_pause = true\n', "run", "controller.write_pause"),
+    # drift refresh over 100 s of simulated time: 6e8 refreshes, hours of work
+    ('[cell]\npreset = "pcm_mlc2"\n[refresh]\npolicy = "drift"\n[workload]\ninterval_ns = 1e6\n', "run",
+     "workload.requests"),
     ('[cell]\npreset = "pcm_tri"\n[controller]\nwrite_pause = true\n', "run", "controller.write_pause"),
     # cross-field checks name the file
     ('[write]\nscheme = "block_erase"\n[leveling]\nscheme = "start_gap"\n', "run", "leveling.scheme"),

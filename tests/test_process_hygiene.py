@@ -193,3 +193,21 @@ def test_refresh_load_is_the_device_figure():
     # A load below 1 runs (4 banks x 16 channels share the same device).
     s = simulate(None, overrides={**OVERLOAD, "array.channels": 16}).summary
     assert s["requests"] == 100
+
+
+def test_refresh_count_of_a_run_does_not_depend_on_modeled_lines():
+    # Refreshes in a span = device lines x span / refresh interval (ages scale with
+    # device lines per modeled line; see memsim/policy/refresh.py): common practice.
+    from memsim.config import load_config
+    from memsim.policy.refresh import plan_refresh, refresh_ops
+
+    counts = []
+    for lines in (4096, 65536):
+        cfg = load_config(None, {"cell.preset": "pcm_mlc2", "refresh.policy": "drift",
+                                 "array.lines": lines, "array.capacity_gib": 0.25})
+        plan = plan_refresh(cfg)
+        per_bank = np.full(cfg.array.banks * cfg.array.channels, lines / (cfg.array.banks * cfg.array.channels))
+        counts.append(refresh_ops(plan, per_bank, 1e9))
+    device_lines = 0.25 * 2**30 / 64
+    assert counts[0] == pytest.approx(counts[1], rel=1e-9)
+    assert counts[0] == pytest.approx(device_lines * 1.0 / plan.interval_s, rel=1e-6)

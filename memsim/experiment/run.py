@@ -190,6 +190,17 @@ def simulate(config: str | Path | Mapping | RunConfig | None = None, **overrides
         gc.collect()
 
 
+def expected_span_ns(cfg: RunConfig) -> float | None:
+    """Simulated time an open-loop synthetic run spans (arrivals only); None if not known up front."""
+    w = cfg.workload
+    if w.pattern == "trace" or w.arrival == "closed":
+        return None
+    span = w.requests * w.interval_ns
+    if w.arrival == "onoff":
+        span *= (w.on_ns + w.off_ns) / w.on_ns
+    return span
+
+
 def _simulate(cfg: RunConfig) -> RunResult:
     t0 = time.perf_counter()
     rng = np.random.default_rng(cfg.run.seed)
@@ -200,7 +211,7 @@ def _simulate(cfg: RunConfig) -> RunResult:
         engine = TimingEngine(cfg, source, path, plan, np.random.default_rng([cfg.run.seed, 1]))
         if plan.active:
             lines_per_bank, service = refresh_demand(engine)
-            check_refresh_load(plan, lines_per_bank, service)
+            check_refresh_load(plan, lines_per_bank, service, expected_span_ns(cfg))
         tot = engine.run()
     finally:
         if source.reader is not None:

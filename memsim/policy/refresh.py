@@ -127,13 +127,43 @@ def refresh_load(plan: RefreshPlan, lines_per_bank: np.ndarray, service_ns: floa
     return float(np.max(lines_per_bank, initial=0)) * service_ns / plan.threshold_ns
 
 
-def check_refresh_load(plan: RefreshPlan, lines_per_bank: np.ndarray, service_ns: float) -> float:
+# Refresh operations one run may simulate: the same bound as workload.requests
+# (each costs the engine about as much as a request).
+MAX_REFRESH_OPS = 50_000_000
+
+
+def refresh_ops(plan: RefreshPlan, lines_per_bank: np.ndarray, span_ns: float) -> float:
+    """Refresh operations a run of ``span_ns`` simulated time performs (steady state).
+
+    Every modeled line is refreshed once per ``threshold_ns``; by the time
+    scaling this is the device's own count, whatever ``array.lines`` is.
+    """
+    if not plan.active or not math.isfinite(plan.threshold_ns) or plan.threshold_ns <= 0:
+        return 0.0
+    return float(np.sum(lines_per_bank)) * span_ns / plan.threshold_ns
+
+
+def check_refresh_load(plan: RefreshPlan, lines_per_bank: np.ndarray, service_ns: float,
+                       span_ns: float | None = None) -> float:
     """Raise ConfigError if refresh alone needs a bank's whole time; return the load.
 
     At a load of 1 or more the refresh backlog grows without end: lines
     outlive their refresh age, and since refresh outranks writes the run
-    need not end at all.  No modeled result would mean anything.
+    need not end at all.  No modeled result would mean anything.  With the
+    run's expected simulated span ``span_ns``, a run that would simulate
+    more than :data:`MAX_REFRESH_OPS` refreshes is refused too: it would
+    not hang, but run for hours.
     """
+    if span_ns is not None and math.isfinite(span_ns):
+        ops = refresh_ops(plan, lines_per_bank, span_ns)
+        if ops > MAX_REFRESH_OPS:
+            raise ConfigError(
+                "workload.requests",
+                f"a run of about {span_ns / 1e9:,.4g} s simulated time, in which refresh policy "
+                f"'{plan.policy}' would perform about {ops:,.3g} refreshes",
+                f"at most {MAX_REFRESH_OPS:,} refreshes per run: fewer workload.requests or a shorter "
+                f"workload.interval_ns (refreshes scale with simulated time and array.capacity_gib, "
+                f"not with array.lines)")
     load = refresh_load(plan, lines_per_bank, service_ns)
     if load >= 1.0:
         per_bank = float(np.max(lines_per_bank)) * plan.scale
