@@ -13,7 +13,8 @@ from scipy import integrate
 
 from memsim.config import load_config
 from memsim.errors import ConfigError
-from memsim.experiment.cell import cell_model, load_spec, parse_spec, save_cell
+from memsim.experiment.cell import cell_model, load_spec, parse_spec
+from memsim.report.cell_plot import save_cell
 from memsim.tech.crystallization import (
     K_B_EV_PER_K,
     YEAR_S,
