@@ -28,10 +28,12 @@ from memsim.errors import ConfigError, UserError
 from memsim.experiment.batch import (
     RESERVED,
     Execution,
-    choose_metrics as _choose_metrics,
     derive_seeds,
     execute,
     flatten,
+)
+from memsim.experiment.batch import (
+    choose_metrics as _choose_metrics,
 )
 from memsim.experiment.cache import RunCache, config_key
 from memsim.experiment.executors import Task

@@ -48,12 +48,14 @@ from memsim.config.load import read_toml
 from memsim.errors import ConfigError
 from memsim.experiment.batch import (
     RESERVED,
-    check_key as _check_key,
     choose_metrics,
     derive_seeds,
     execute,
     flatten,
     metric_hint,
+)
+from memsim.experiment.batch import (
+    check_key as _check_key,
 )
 from memsim.experiment.cache import RunCache, config_key, table_from_entry, write_frame
 from memsim.experiment.executors import Task, check_workers
