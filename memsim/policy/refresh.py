@@ -20,16 +20,40 @@ in the device.
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
 
 from memsim.errors import ConfigError
+from memsim.registry import Registry
 from memsim.tech.drift import error_table, refresh_age
 from memsim.tech.models import drift_params, mlc_cell
 from memsim.units import GIB, NS_PER_S
 
-POLICIES = ("none", "periodic", "drift", "scrub")
+
+@dataclass(frozen=True)
+class RefreshPolicy:
+    """A refresh policy: its name, what it does, and the device-time interval at which it
+    rewrites a line (NaN: it rewrites none on a schedule)."""
+
+    name: str
+    summary: str
+    interval_s: Callable[[float, float], float]     # (refresh.interval_s, refresh age s) -> interval s
+
+
+REFRESH_POLICIES: Registry[RefreshPolicy] = Registry("refresh policy", "refresh.policy")
+for _p in (
+    RefreshPolicy("none", "no refresh", lambda period, age: math.nan),
+    RefreshPolicy("periodic", "every line every refresh.interval_s", lambda period, age: period),
+    RefreshPolicy("drift", "a line when its age since its last write reaches the refresh age",
+                  lambda period, age: age),
+    RefreshPolicy("scrub", "a read that sees more than refresh.scrub_errors errors rewrites the line",
+                  lambda period, age: math.nan),
+):
+    REFRESH_POLICIES.add(_p)
+# The names, for callers that only need them.
+POLICIES: tuple[str, ...] = tuple(REFRESH_POLICIES.names())
 
 
 @dataclass
@@ -101,12 +125,7 @@ def plan_refresh(cfg) -> RefreshPlan:
     tab = error_table(cell, drift, ages, n_cells, r.correctable_bits, r.temperature_k,
                       method=r.fail_model)
     scale = line_scale(cfg)
-    if r.policy == "drift":
-        interval = ra.age_s
-    elif r.policy == "periodic":
-        interval = r.interval_s
-    else:
-        interval = math.nan
+    interval = REFRESH_POLICIES.get_part(r.policy).interval_s(r.interval_s, ra.age_s)
     threshold = interval * NS_PER_S / scale if math.isfinite(interval) else math.inf
     scan = threshold * r.scan_fraction if math.isfinite(threshold) else math.inf
     return RefreshPlan(r.policy, ra.age_s, ra.status, interval, scale, threshold, scan,
