@@ -28,7 +28,8 @@ replications keeps the earlier ones.
 
 Each run (point x seed) is cached by a hash of its resolved config (see
 :mod:`memsim.experiment.cache`), so a killed sweep redoes only what did not
-finish and a grown grid reuses every point it shares with the old one.
+finish and a grown grid reuses every point it shares with the old one.  The
+loop that does this is shared with comparisons: :mod:`memsim.experiment.batch`.
 """
 from __future__ import annotations
 
