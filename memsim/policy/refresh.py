@@ -24,7 +24,9 @@ from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
+import numpy.typing as npt
 
+from memsim.config import RunConfig
 from memsim.errors import ConfigError
 from memsim.registry import Registry
 from memsim.tech.drift import error_table, refresh_age
@@ -96,25 +98,25 @@ class RefreshPlan:
         x = np.log10(np.maximum(np.asarray(device_age_s, dtype=float), 1e-12))
         return np.interp(x, self.log_age_grid, grid, left=grid[0], right=grid[-1])
 
-    def rber(self, device_age_s) -> np.ndarray:
+    def rber(self, device_age_s: npt.ArrayLike) -> np.ndarray:
         """Raw bit error rate of a line of the given device age."""
         return self._interp(self.rber_grid, device_age_s)
 
-    def p_fail(self, device_age_s) -> np.ndarray:
+    def p_fail(self, device_age_s: npt.ArrayLike) -> np.ndarray:
         """Probability that a line of that age is uncorrectable."""
         return self._interp(self.p_fail_grid, device_age_s)
 
-    def device_age_s(self, sim_age_ns) -> np.ndarray:
+    def device_age_s(self, sim_age_ns: npt.ArrayLike) -> np.ndarray:
         return np.asarray(sim_age_ns, dtype=float) * self.scale / NS_PER_S
 
 
-def line_scale(cfg) -> float:
+def line_scale(cfg: RunConfig) -> float:
     """Device lines per modeled line (>= 1)."""
     device_lines = cfg.array.capacity_gib * GIB / cfg.array.line_bytes
     return max(1.0, device_lines / cfg.array.lines)
 
 
-def plan_refresh(cfg) -> RefreshPlan:
+def plan_refresh(cfg: RunConfig) -> RefreshPlan:
     """Refresh age and the engine-side plan of a config's refresh policy."""
     r = cfg.refresh
     cell, drift = mlc_cell(cfg), drift_params(cfg)
