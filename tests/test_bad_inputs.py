@@ -6,24 +6,13 @@ two in a subprocess), so a traceback, a hang or a wrong exit code shows here.
 import os
 import subprocess
 import sys
-from pathlib import Path
 
 import pytest
+from conftest import DEMO, ROOT, cli
 
-ROOT = Path(__file__).resolve().parents[1]
-DEMO = ROOT / "workloads" / "demo.toml"
 SMALL = "[workload]\nrequests = 1500\n"
 
 
-def cli(capsys, monkeypatch, *args):
-    """(exit code, stdout, stderr) of ``memsim ARGS`` through its console entry point."""
-    from memsim.cli import entry
-
-    monkeypatch.setattr(sys, "argv", ["memsim", *map(str, args)])
-    with pytest.raises(SystemExit) as exc:
-        entry()
-    out = capsys.readouterr()
-    return exc.value.code, out.out, out.err
 
 
 def assert_one_line(code, out, err, *needles):

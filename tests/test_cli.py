@@ -1,24 +1,13 @@
-"""The installed command, run in a subprocess."""
+"""The command line: the installed command once in a subprocess, the rest in this process."""
 import json
-import os
-import subprocess
-import sys
-from pathlib import Path
 
 import pytest
-
-ROOT = Path(__file__).resolve().parents[1]
-
-
-def memsim(*args, cwd=None):
-    cmd = [sys.executable, "-m", "memsim.cli", *args]
-    return subprocess.run(cmd, capture_output=True, text=True, cwd=cwd or ROOT,
-                          env={**os.environ, "PYTHONPATH": str(ROOT)})
+from conftest import DEMO, memsim_cli, memsim_subprocess
 
 
 def test_run_writes_results(tmp_path):
     out = tmp_path / "r"
-    p = memsim("run", "workloads/demo.toml", "--set", "workload.requests=3000", "--out", str(out))
+    p = memsim_subprocess("run", "workloads/demo.toml", "--set", "workload.requests=3000", "--out", str(out))
     assert p.returncode == 0, p.stderr
     assert "read_latency_p99_ns" in p.stdout
     doc = json.loads((out / "summary.json").read_text())
@@ -38,24 +27,24 @@ def test_run_writes_results(tmp_path):
 def test_bad_config_one_line_exit_2(tmp_path, text, needle):
     cfg = tmp_path / "bad.toml"
     cfg.write_text(text)
-    p = memsim("run", str(cfg))
-    assert p.returncode == 2
-    lines = p.stderr.strip().splitlines()
+    p = memsim_cli("run", cfg)
+    assert p.code == 2
+    lines = p.err.strip().splitlines()
     assert len(lines) == 1 and needle in lines[0] and "bad.toml" in lines[0] or needle in lines[0]
-    assert "Traceback" not in p.stderr
+    assert "Traceback" not in p.err
 
 
 def test_bad_set_and_missing_file():
-    p = memsim("run", "workloads/demo.toml", "--set", "array.banks=-3")
-    assert p.returncode == 2 and p.stderr.count("\n") == 1 and "--set array.banks" in p.stderr
-    p = memsim("run", "no_such.toml")
-    assert p.returncode == 2 and "no_such.toml" in p.stderr
-    p = memsim("run", "workloads/demo.toml", "--bogus")
-    assert p.returncode == 2 and p.stderr.count("\n") == 1
+    p = memsim_cli("run", DEMO, "--set", "array.banks=-3")
+    assert p.code == 2 and p.err.count("\n") == 1 and "--set array.banks" in p.err
+    p = memsim_cli("run", "no_such.toml")
+    assert p.code == 2 and "no_such.toml" in p.err
+    p = memsim_cli("run", DEMO, "--bogus")
+    assert p.code == 2 and p.err.count("\n") == 1
 
 
 def test_list_comes_from_registries():
-    p = memsim("list")
-    assert p.returncode == 0
-    for name in ("full_line", "data_comparison", "flip_n_write", "pcm_slc"):
-        assert name in p.stdout
+    p = memsim_cli("list")
+    assert p.code == 0
+    for name in ("full_line", "data_comparison", "flip_n_write", "pcm_slc", "cost_benefit", "scrub"):
+        assert name in p.out

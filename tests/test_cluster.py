@@ -1,19 +1,18 @@
 """A sweep on a real Dask cluster (scheduler and worker processes on 127.0.0.1) gives the
 same table, value for value, as the local process pool."""
-import sys
-from pathlib import Path
 
 import pandas as pd
 import pytest
+from conftest import DEMO, memsim_cli
 
 from memsim.errors import UserError
 from memsim.experiment.executors import DaskCluster
 from memsim.experiment.sweep import sweep
 
 distributed = pytest.importorskip("distributed")
+# A cluster takes several seconds to start; CI runs these with -m slow.
+pytestmark = pytest.mark.slow
 
-ROOT = Path(__file__).resolve().parents[1]
-DEMO = ROOT / "workloads" / "demo.toml"
 GRID = {"write.scheme": ["full_line", "flip_n_write"], "workload.read_fraction": [0.6, 0.9]}
 FIXED = {"workload.requests": 1500}
 
@@ -38,9 +37,7 @@ def test_cluster_table_equals_local_pool(cluster, tmp_path):
     pd.testing.assert_frame_equal(again, local, check_exact=True)
 
 
-def test_cli_scheduler_option(cluster, tmp_path, capsys, monkeypatch):
-    from memsim.cli import entry
-
+def test_cli_scheduler_option(cluster, tmp_path):
     spec = tmp_path / "s.toml"
     spec.write_text(f"""
 [sweep]
@@ -55,12 +52,8 @@ write.scheme = ["full_line", "data_comparison"]
 """)
     outs = {}
     for label, extra in (("local", ["--workers", "2"]), ("dask", ["--scheduler", cluster.scheduler_address])):
-        monkeypatch.setattr(sys, "argv", ["memsim", "sweep", str(spec), "--quiet", "--out", str(tmp_path / label),
-                                          *extra])
-        with pytest.raises(SystemExit) as exc:
-            entry()
-        out = capsys.readouterr()
-        assert exc.value.code == 0, out.err
+        out = memsim_cli("sweep", spec, "--quiet", "--out", tmp_path / label, *extra)
+        assert out.code == 0, out.err
         outs[label] = pd.read_parquet(tmp_path / label / "runs.parquet")
     assert "Dask scheduler" in out.out
     pd.testing.assert_frame_equal(outs["local"], outs["dask"], check_exact=True)

@@ -2,11 +2,11 @@
 import os
 import subprocess
 import sys
-from pathlib import Path
 
 import numpy as np
 import pandas as pd
 import pytest
+from conftest import DEMO, ROOT, SCHEMES, SMALL, cli
 from scipy import stats as sstats
 
 from memsim.errors import ConfigError
@@ -23,23 +23,6 @@ from memsim.experiment.run import simulate
 from memsim.experiment.sweep import derive_seeds
 from memsim.report.compare_plot import compare_figure, table_metrics
 from memsim.report.figures import axis_label
-
-ROOT = Path(__file__).resolve().parents[1]
-DEMO = ROOT / "workloads" / "demo.toml"
-SMALL = {"workload.requests": 1500}
-SCHEMES = "write.scheme=full_line,data_comparison"
-
-
-def cli(capsys, monkeypatch, *args):
-    """The command's entry point in this process: (exit code, stdout, stderr)."""
-    from memsim.cli import entry
-
-    monkeypatch.setattr(sys, "argv", ["memsim", *map(str, args)])
-    with pytest.raises(SystemExit) as exc:
-        entry()
-    out = capsys.readouterr()
-    return exc.value.code, out.out, out.err
-
 
 # --- written settings ------------------------------------------------------------------
 

@@ -37,7 +37,7 @@ def _measured_wa(pool: BlockPool, writes: np.ndarray, chunk: int = 500) -> tuple
     return wa, 1.0 - pool.n_logical / float(np.mean(in_use))
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def _uniform_run(victim: str, n_blocks: int, B: int, spare: float, seed: int,
                  warm: int = 3, meas: int = 6) -> tuple[float, float]:
     n_logical = int(n_blocks * B * (1.0 - spare))
@@ -55,7 +55,7 @@ def _hot_cold(rng: np.random.Generator, n_logical: int, n: int,
     return np.where(hot, rng.integers(0, n_hot, n), rng.integers(n_hot, n_logical, n))
 
 
-@functools.lru_cache(maxsize=None)
+@functools.cache
 def _skewed_wa(victim: str, hot_frac: float, hot_share: float, spare: float = 0.2,
                seed: int = 3) -> float:
     n_logical = int(512 * 16 * (1.0 - spare))
@@ -294,7 +294,7 @@ def test_analytic_fifo_solves_its_defining_equation() -> None:
     for spare in (0.05, 0.1, 0.2, 0.4):
         alpha = 1 / (1 - spare)
         # Root of u = exp(-alpha (1 - u)) in (0, 1), found without Lambert W.
-        u = brentq(lambda x: x - math.exp(-alpha * (1 - x)), 1e-12, 1 - 1e-9)
+        u = brentq(lambda x, a=alpha: x - math.exp(-a * (1 - x)), 1e-12, 1 - 1e-9)
         assert analytic_write_amplification(spare, "fifo") == pytest.approx(1 / (1 - u), rel=1e-9)
 
 

@@ -1,11 +1,10 @@
 """Figures and the report page of a sweep: what is drawn is the data, labels carry units."""
-import sys
 import xml.etree.ElementTree as ET
-from pathlib import Path
 
 import numpy as np
 import pandas as pd
 import pytest
+from conftest import DEMO, memsim_cli
 
 from memsim.errors import UserError
 from memsim.experiment.sweep import make_spec, run_sweep
@@ -22,8 +21,6 @@ from memsim.report.figures import (
 from memsim.report.page import write_page
 from memsim.workload.chunk import READ, WRITE
 
-ROOT = Path(__file__).resolve().parents[1]
-DEMO = ROOT / "workloads" / "demo.toml"
 METRICS = ["throughput_gbps", "read_latency_p99_ns", "energy_per_bit_pj"]
 
 
@@ -147,16 +144,8 @@ def test_standard_figures_and_page(results):
     assert f"runs: {len(runs)} (6 points), failed: 0" in text
 
 
-def test_plot_cli(results, tmp_path, capsys, monkeypatch):
-    from memsim.cli import entry
-
-    def memsim(*args):
-        monkeypatch.setattr(sys, "argv", ["memsim", *map(str, args)])
-        with pytest.raises(SystemExit) as exc:
-            entry()
-        out = capsys.readouterr()
-        return exc.value.code, out.out, out.err
-
+def test_plot_cli(results, tmp_path):
+    memsim = memsim_cli
     code, out, err = memsim("plot", results, "--metric", "throughput_gbps")
     assert code == 0, err
     assert "throughput_gbps_by_write-scheme.png" in out and "report.md" in out

@@ -17,8 +17,8 @@ def test_generator_announces_every_write_lead_ns_before():
     chunks = list(SyntheticSource(cfg.workload, cfg.footprint, np.random.default_rng(3), 4096))
     c = Chunk.concat(chunks)
     assert np.all(np.diff(c.time_ns) >= 0)
-    hints = {(round(t + 700.0, 6), int(l)) for t, l in zip(c.time_ns[c.op == HINT], c.line[c.op == HINT])}
-    writes = [(round(t, 6), int(l)) for t, l in zip(c.time_ns[c.op == WRITE], c.line[c.op == WRITE])]
+    hints = {(round(t + 700.0, 6), int(n)) for t, n in zip(c.time_ns[c.op == HINT], c.line[c.op == HINT])}
+    writes = [(round(t, 6), int(n)) for t, n in zip(c.time_ns[c.op == WRITE], c.line[c.op == WRITE])]
     announced = [w for w in writes if w[0] >= 700.0]
     assert len(hints) == len(announced) and all(w in hints for w in announced)
     assert (c.op != HINT).sum() == cfg.workload.requests

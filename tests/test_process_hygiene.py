@@ -12,14 +12,13 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from conftest import DEMO, ROOT
 
 from memsim.errors import ConfigError, TraceError
 from memsim.experiment.run import resolve, simulate
 from memsim.policy.refresh import plan_refresh, refresh_load
 from memsim.workload.trace import TraceReader
 
-ROOT = Path(__file__).resolve().parents[1]
-DEMO = ROOT / "workloads" / "demo.toml"
 ENV = {**os.environ, "PYTHONPATH": str(ROOT)}
 
 
@@ -70,6 +69,7 @@ def _alive(pid: int) -> bool:
     return state != "Z"             # a zombie has exited; only its parent's wait is missing
 
 
+@pytest.mark.slow
 @pytest.mark.skipif(not Path("/proc/self/stat").exists(), reason="needs /proc to find the workers")
 def test_killed_sweep_leaves_no_worker(tmp_path):
     spec = tmp_path / "long.toml"

@@ -5,12 +5,10 @@ from pathlib import Path
 
 import pandas as pd
 import pytest
+from conftest import DEMO, ROOT
 
 import memsim
 from memsim.errors import ConfigError, UserError
-
-ROOT = Path(__file__).resolve().parents[1]
-DEMO = ROOT / "workloads" / "demo.toml"
 
 
 def test_make_trace_then_summarize_it(tmp_path):

@@ -2,31 +2,20 @@
 import json
 import os
 import stat
-import sys
 from pathlib import Path
 
 import pytest
+from conftest import DEMO, cli
 
 from memsim.experiment.cache import RunCache, entry_text
 from memsim.experiment.sweep import make_spec, run_sweep
 from memsim.metrics.files import atomic_write_text, dumps, loads_strict
 
-ROOT = Path(__file__).resolve().parents[1]
-DEMO = ROOT / "workloads" / "demo.toml"
 SMALL = ("--set", "workload.requests=1500")
 LIFETIME_TOML = ('[run]\nname = "c"\n[array]\nlines = 128\n[workload]\nread_fraction = 0.0\n'
                  '[leveling]\nscheme = "start_gap"\n[lifetime]\nwindow_writes = 20000\n')
 
 
-def cli(capsys, monkeypatch, *args):
-    """The command's entry point in this process: (exit code, stdout, stderr)."""
-    from memsim.cli import entry
-
-    monkeypatch.setattr(sys, "argv", ["memsim", *map(str, args)])
-    with pytest.raises(SystemExit) as exc:
-        entry()
-    out = capsys.readouterr()
-    return exc.value.code, out.out, out.err
 
 
 def snapshot(folder: Path) -> dict[str, bytes]:

@@ -9,6 +9,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import pytest
+from conftest import DEMO, ROOT, SMALL, cli, memsim_subprocess
 from scipy import stats as sstats
 
 from memsim.errors import ConfigError
@@ -16,27 +17,9 @@ from memsim.experiment import cache as cache_mod
 from memsim.experiment.cache import RunCache, config_key, write_frame
 from memsim.experiment.sweep import derive_seeds, load_sweep, make_spec, point_stats, run_sweep, sweep
 
-ROOT = Path(__file__).resolve().parents[1]
-DEMO = ROOT / "workloads" / "demo.toml"
-SMALL = {"workload.requests": 1500}
+memsim = memsim_subprocess
 
 
-def memsim(*args, cwd=None):
-    """The installed command in a subprocess."""
-    cmd = [sys.executable, "-m", "memsim.cli", *args]
-    return subprocess.run(cmd, check=False, capture_output=True, text=True, cwd=cwd or ROOT,
-                          env={**os.environ, "PYTHONPATH": str(ROOT)})
-
-
-def cli(capsys, monkeypatch, *args):
-    """The command's entry point in this process (saves a Python start): (exit code, stdout, stderr)."""
-    from memsim.cli import entry
-
-    monkeypatch.setattr(sys, "argv", ["memsim", *map(str, args)])
-    with pytest.raises(SystemExit) as exc:
-        entry()
-    out = capsys.readouterr()
-    return exc.value.code, out.out, out.err
 
 
 def write_sweep(folder: Path, body: str, name: str = "s.toml") -> Path:
@@ -270,6 +253,7 @@ workload.read_fraction = [0.5, 0.7, 0.9]
 """
 
 
+@pytest.mark.slow
 def test_killed_sweep_resumes_without_loss_duplication_or_recomputation(tmp_path):
     spec_file = write_sweep(tmp_path, KILL_SWEEP)
     out = tmp_path / "o"

@@ -2,12 +2,11 @@
 from __future__ import annotations
 
 import math
-import subprocess
-import sys
 from pathlib import Path
 
 import numpy as np
 import pytest
+from conftest import memsim_cli
 
 from memsim import simulate
 from memsim.config import load_config
@@ -82,12 +81,11 @@ def test_pcm_only_features_are_rejected() -> None:
 
 
 def test_compare_across_technologies(tmp_path) -> None:
-    out = subprocess.run([sys.executable, "-m", "memsim.cli", "compare", str(ROOT / "workloads" / "demo.toml"),
-                          "--vary", "cell.preset=pcm_slc,reram_slc,stt_mram", "--set", "workload.requests=3000",
-                          "--workers", "1", "--quiet", "--out", str(tmp_path / "c")],
-                         capture_output=True, text=True, check=False)
-    assert out.returncode == 0, out.stderr
-    assert "reram_slc" in out.stdout and "stt_mram" in out.stdout
+    out = memsim_cli("compare", ROOT / "workloads" / "demo.toml",
+                     "--vary", "cell.preset=pcm_slc,reram_slc,stt_mram", "--set", "workload.requests=3000",
+                     "--workers", "1", "--quiet", "--out", tmp_path / "c")
+    assert out.code == 0, out.err
+    assert "reram_slc" in out.out and "stt_mram" in out.out
 
 
 def test_stt_run_reports_its_write_error_rates() -> None:

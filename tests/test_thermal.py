@@ -2,18 +2,18 @@
 from __future__ import annotations
 
 import math
-import subprocess
-import sys
 import tomllib
 from pathlib import Path
 
 import numpy as np
 import pytest
+from conftest import memsim_cli
 from scipy import integrate
 
 from memsim.config import load_config
 from memsim.errors import ConfigError
-from memsim.experiment.cell import cell_model, load_spec, parse_spec, save_cell
+from memsim.experiment.cell import cell_model, load_spec, parse_spec
+from memsim.report.cell_plot import save_cell
 from memsim.tech.crystallization import (
     K_B_EV_PER_K,
     YEAR_S,
@@ -228,13 +228,12 @@ def test_bad_spec_names_the_key(tmp_path) -> None:
 
 
 def test_cli_cell(tmp_path) -> None:
-    out = subprocess.run([sys.executable, "-m", "memsim.cli", "cell", str(DEMO), "--out", str(tmp_path / "c")],
-                         capture_output=True, text=True, check=False)
-    assert out.returncode == 0, out.stderr
-    assert "silicon characterisation" in out.stdout
+    out = memsim_cli("cell", DEMO, "--out", tmp_path / "c")
+    assert out.code == 0, out.err
+    assert "silicon characterisation" in out.out
     assert (tmp_path / "c" / "demo_pillar_preset.toml").is_file()
     bad = tmp_path / "bad.toml"
     bad.write_text("name = 'x'\nmaterial = 'gst225'\n[geometry]\nactive_volume_nm3 = 'big'\n")
-    out = subprocess.run([sys.executable, "-m", "memsim.cli", "cell", str(bad)], capture_output=True, text=True, check=False)
-    assert out.returncode == 2 and "geometry.active_volume_nm3" in out.stderr
-    assert "Traceback" not in out.stderr and len(out.stderr.strip().splitlines()) == 1
+    out = memsim_cli("cell", bad)
+    assert out.code == 2 and "geometry.active_volume_nm3" in out.err
+    assert "Traceback" not in out.err and len(out.err.strip().splitlines()) == 1

@@ -69,9 +69,9 @@ def test_flip_n_write_decodes_what_was_written(rng):
     lines = rng.integers(0, 64, 5000)
     data = rng.integers(0, 256, size=(5000, 64), dtype=np.uint8)
     p.apply(lines, data)
-    last = {int(l): i for i, l in enumerate(lines)}
-    for l, i in last.items():
-        assert np.array_equal(p.logical_content(np.array([l]))[0], data[i])
+    last = {int(line): i for i, line in enumerate(lines)}
+    for line, i in last.items():
+        assert np.array_equal(p.logical_content(np.array([line]))[0], data[i])
 
 
 def test_rounds_keep_per_line_order():

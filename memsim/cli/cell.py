@@ -13,7 +13,8 @@ from memsim.cli.common import print_summary
 @click.option("--out", type=click.Path(file_okay=False), help="Results folder (default results/<name>_cell).")
 def cell_cmd(spec: str, out: str | None) -> None:
     """Derive the pulses of the cell in SPEC (TOML) and write a preset for `memsim run`."""
-    from memsim.experiment.cell import cell_model, save_cell
+    from memsim.experiment.cell import cell_model
+    from memsim.report.cell_plot import save_cell
 
     result = cell_model(spec)
     s = dict(result.summary)

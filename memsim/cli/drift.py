@@ -25,7 +25,8 @@ from memsim.cli.common import (
 @click.option("--replace", is_flag=True, help=REPLACE_HELP)
 def drift(config: str, sets: tuple[str, ...], out: str | None, replace: bool) -> None:
     """Print the error-rate table and refresh age of CONFIG's cells (no workload run)."""
-    from memsim.experiment.drift import drift_report, save_drift_figure
+    from memsim.experiment.drift import drift_report
+    from memsim.report.drift_plot import save_drift_figure
 
     with naming(config, sets):
         cfg, claim = prepare_output(config, sets, out, replace, "drift")

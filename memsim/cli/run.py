@@ -38,12 +38,13 @@ def run(config: str, sets: tuple[str, ...], out: str | None, replace: bool, full
 
 @click.command(name="list")
 def list_parts() -> None:
-    """List write schemes, wear levelers, refresh policies and technology presets."""
+    """List write schemes, wear levelers, refresh policies, cleaner victim policies and presets."""
     from memsim.experiment.tools import available
 
     parts = available()
     labels = {"write_schemes": "write schemes", "wear_levelers": "wear levelers",
-              "refresh_policies": "refresh policies", "presets": "presets"}
+              "refresh_policies": "refresh policies", "cleaner_victims": "cleaner victims",
+              "presets": "presets"}
     width = max(len(v) for v in labels.values()) + 1
     for key, names in parts.items():
         click.echo(f"{labels.get(key, key) + ':':<{width}} " + ", ".join(names))

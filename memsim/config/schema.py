@@ -1,9 +1,17 @@
 """Typed schema of one run.
 
 Every field has a default and a unit (in its name or its description).  The
-sections are ``run``, ``cell``, ``array``, ``controller``, ``write`` and
-``workload``; unknown keys are rejected.  Cell defaults come from the SLC
-preset data file so the numbers (and their sources) live in one place.
+sections are ``run``, ``cell``, ``array``, ``controller``, ``write``,
+``workload``, ``refresh``, ``leveling``, ``lifetime``, ``power`` and
+``erase``; unknown keys are rejected.  Cell defaults come from the SLC preset
+data file so the numbers (and their sources) live in one place.
+
+Fields that name a part (``write.scheme``, ``leveling.scheme``,
+``leveling.inner``, ``refresh.policy``, ``erase.victim``) are plain strings
+here: their registries live in ``policy/``, an outer layer this module may
+not import.  :mod:`memsim.experiment.checks` checks the names against the
+registries when a run config is resolved and writes the registered names
+into these fields' descriptions.
 
 Types are strict (pydantic strict mode) where a loose reading would give a
 silently wrong run: an integer field takes integers only (not ``true``, not
@@ -17,26 +25,64 @@ from __future__ import annotations
 
 import math
 import tomllib
+from dataclasses import dataclass
 from importlib import resources
+from importlib.resources.abc import Traversable
 from typing import Annotated, Any, Literal
 
 from pydantic import BaseModel, BeforeValidator, ConfigDict, Field
 from pydantic_core import PydanticCustomError
 
+from memsim.registry import Registry
 
-def preset_path(name: str):
+
+@dataclass(frozen=True)
+class Preset:
+    """A bundled technology preset: a TOML data file of config defaults (``cell.preset``)."""
+
+    name: str
+    summary: str            # the file's first comment line
+
+    def path(self) -> Traversable:
+        return resources.files("memsim.config") / "presets" / f"{self.name}.toml"
+
+    def load(self) -> dict:
+        with self.path().open("rb") as fh:
+            return tomllib.load(fh)
+
+
+def _bundled_presets() -> list[Preset]:
+    folder = resources.files("memsim.config") / "presets"
+    out = []
+    for p in sorted(folder.iterdir(), key=lambda p: p.name):
+        if p.name.endswith(".toml"):
+            head = []
+            for line in p.read_text().splitlines():
+                if not line.startswith("#"):
+                    break
+                head.append(line.lstrip("# "))
+            first = " ".join(head).split(". ")[0].split(": ")[0].rstrip(".")
+            out.append(Preset(p.name[:-5], first))
+    return out
+
+
+# Presets are found by name here like every other named part (memsim.registry).
+PRESETS: Registry[Preset] = Registry("technology preset", "cell.preset", load=_bundled_presets)
+
+
+def preset_path(name: str) -> Traversable:
     """Path of a bundled technology preset data file."""
-    return resources.files("memsim.config") / "presets" / f"{name}.toml"
+    return PRESETS.get_part(name).path()
 
 
 def preset_names() -> list[str]:
-    folder = resources.files("memsim.config") / "presets"
-    return sorted(p.name[:-5] for p in folder.iterdir() if p.name.endswith(".toml"))
+    """Names of the bundled technology presets."""
+    return PRESETS.names()
 
 
 def load_preset(name: str) -> dict:
-    with preset_path(name).open("rb") as fh:
-        return tomllib.load(fh)
+    """The tables of bundled preset ``name`` (ConfigError naming cell.preset if unknown)."""
+    return PRESETS.get_part(name).load()
 
 
 _SLC = load_preset("pcm_slc")["cell"]
@@ -234,9 +280,7 @@ class ControllerSection(Section):
 
 
 class WriteSection(Section):
-    scheme: str = Field("data_comparison",
-                        description="Write scheme: full_line, data_comparison, flip_n_write or "
-                                    "block_erase.")
+    scheme: str = Field("data_comparison", description="Write scheme (memsim list shows the names).")
     word_bits: Annotated[Literal[8, 16, 32, 64], WholeChoice] = Field(32, description="Flip-N-Write word width, bits.")
 
 
@@ -290,7 +334,7 @@ class LevelingSection(Section):
     period: int = Field(10000, ge=1, description="Hot/cold swap: writes between swaps.")
     table_writes_per_swap: int = Field(2, ge=0, description="Hot/cold swap: table line writes per swap.")
     step: int = Field(8, ge=1, description="Bit rotation: bits the offset advances per step.")
-    inner: str = Field("none", description="Bit rotation: line remapper underneath it.")
+    inner: str = Field("none", description="Bit rotation: line remapper underneath it (a wear leveler name).")
 
 
 class LifetimeSection(Section):
@@ -307,10 +351,7 @@ class LifetimeSection(Section):
 
 
 class RefreshSection(Section):
-    policy: Literal["none", "periodic", "drift", "scrub"] = Field(
-        "none", description="Refresh policy: none, periodic (every line every interval_s), drift "
-                            "(a line is refreshed when its age since its last write reaches the refresh "
-                            "age), scrub (a read that sees more than scrub_errors errors rewrites the line).")
+    policy: str = Field("none", description="Refresh policy (memsim list shows the names).")
     interval_s: float = Field(3600.0, gt=0, description="Refresh period of the periodic policy, s.")
     temperature_k: float = Field(300.0, gt=0, description="Operating temperature, K.")
     correctable_bits: int = Field(8, ge=0, le=2048,
@@ -331,8 +372,7 @@ class EraseSection(Section):
     spare_fraction: float = Field(0.15, gt=0, lt=1, description="Over-provisioned share of physical lines.")
     init_state: Literal["set", "reset"] = Field(
         "set", description="State blocks are bulk-initialized to (set: writes need only RESET pulses).")
-    victim: Literal["greedy", "cost_benefit", "fifo"] = Field("greedy",
-                                                              description="Cleaner's victim choice.")
+    victim: str = Field("greedy", description="Cleaner's victim choice (memsim list shows the names).")
     low_watermark: int = Field(2, ge=2, description="Free blocks below which the bank cleans in the "
                                                     "foreground.")
     idle_blocks: int = Field(4, ge=0, description="Free blocks the bank keeps by cleaning in idle time.")

@@ -7,6 +7,7 @@ import numpy as np
 
 from memsim.config import RunConfig
 from memsim.errors import ConfigError, TraceError
+from memsim.experiment.names import check_registered
 from memsim.policy.leveling import Leveler, leveler_names, leveler_params, make_leveler
 from memsim.policy.write import SCHEMES, make_scheme
 from memsim.policy.writepath import WritePath
@@ -49,11 +50,8 @@ def build_leveler(cfg: RunConfig, rng: np.random.Generator) -> Leveler:
 
 
 def check_names(cfg: RunConfig, where_prefix: str = "") -> None:
-    if cfg.write.scheme not in SCHEMES:
-        raise ConfigError(f"{where_prefix}write.scheme", repr(cfg.write.scheme),
-                          "one of " + ", ".join(SCHEMES))
-    if cfg.leveling.scheme not in leveler_names():
-        raise ConfigError("leveling.scheme", repr(cfg.leveling.scheme), "one of " + ", ".join(leveler_names()))
+    """Raise ConfigError unless every part the config names is registered and the parts go together."""
+    check_registered(cfg, where_prefix)
     if SCHEMES[cfg.write.scheme].out_of_place and cfg.leveling.scheme != "none":
         raise ConfigError("leveling.scheme", repr(cfg.leveling.scheme),
                           "none with write.scheme block_erase (its block pool remaps lines itself)")

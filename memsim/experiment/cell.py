@@ -32,7 +32,7 @@ import pandas as pd
 from memsim import __version__
 from memsim.config.load import read_toml
 from memsim.errors import ConfigError
-from memsim.metrics.result import RunResult, atomic_write_text
+from memsim.metrics.result import RunResult
 from memsim.tech.crystallization import YEAR_S, ZERO_C_K, Kinetics, driving_ev_per_k
 from memsim.tech.materials import MATERIALS
 from memsim.tech.thermal import CAUTION, CellPhysics
@@ -269,17 +269,3 @@ def preset_toml(spec: CellSpec, d: dict[str, Any]) -> str:
         lines.append(f"{key} = {float(value):.6g}  # {why}")
     return "\n".join(lines) + "\n"
 
-
-def save_cell(result: RunResult, folder: str | Path) -> list[Path]:
-    """Write summary, tables, the preset and both figures into ``folder``."""
-    from memsim.report.cell_plot import plot_capping, plot_scaling
-
-    folder = Path(folder)
-    result.save(folder)
-    name = result.summary["cell"]
-    preset = folder / f"{name}_preset.toml"
-    atomic_write_text(preset, result.config["preset_toml"])
-    spec = result.config["spec"]
-    return [preset, plot_capping(result.tables["capping_sweep"], folder / "cell_capping.png",
-                                 spec["capping.conductivity_w_mk"], spec["access.current_limit_ua"]),
-            plot_scaling(result.tables["size_sweep"], folder / "cell_scaling.png")]

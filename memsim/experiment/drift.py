@@ -91,14 +91,3 @@ def drift_report(config: str | Path | Mapping | RunConfig | None = None, **overr
     return RunResult(summary, {"drift_errors": table, "drift_errors_dense": dense},
                      cfg.model_dump(), cfg.run.seed, __version__)
 
-
-def save_drift_figure(result: RunResult, folder: str | Path) -> Path:
-    from memsim.report.drift_plot import plot_rber
-
-    s = result.summary
-    age = s["refresh_age_s"] if s["refresh_age_s"] is not None else s["retention_refresh_age_s"]
-    age = age if age is not None and math.isfinite(age) else None
-    what = ("drift and crystallization" if s["refresh_age_s"] is not None and s["retention_median_years"]
-            is not None else "crystallization only" if s["refresh_age_s"] is None else "drift only")
-    return plot_rber(result.tables["drift_errors_dense"], s["rber_limit"], age,
-                     Path(folder) / "drift_rber.png", subtitle=f"at {s['temperature_k']:g} K, {what}")

@@ -183,6 +183,12 @@ class DaskCluster:
         self._client.close()
 
 
+def check_workers(workers: int | None) -> None:
+    """Raise UserError naming ``--workers`` unless it is None or a whole number >= 1."""
+    if workers is not None and (isinstance(workers, bool) or not isinstance(workers, int) or workers < 1):
+        raise UserError("--workers", repr(workers), "a whole number >= 1")
+
+
 def make_executor(workers: int | None = None, scheduler: str | None = None
                   ) -> InProcess | LocalPool | DaskCluster:
     """The executor for ``workers`` local processes or a Dask ``scheduler`` address.
@@ -191,8 +197,7 @@ def make_executor(workers: int | None = None, scheduler: str | None = None
     """
     if scheduler:
         return DaskCluster(scheduler)
+    check_workers(workers)
     if workers is None:
         workers = os.cpu_count() or 1
-    if workers < 1:
-        raise UserError("--workers", str(workers), "a whole number >= 1")
     return InProcess() if workers == 1 else LocalPool(workers)

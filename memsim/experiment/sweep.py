@@ -28,11 +28,11 @@ replications keeps the earlier ones.
 
 Each run (point x seed) is cached by a hash of its resolved config (see
 :mod:`memsim.experiment.cache`), so a killed sweep redoes only what did not
-finish and a grown grid reuses every point it shares with the old one.
+finish and a grown grid reuses every point it shares with the old one.  The
+loop that does this is shared with comparisons: :mod:`memsim.experiment.batch`.
 """
 from __future__ import annotations
 
-import difflib
 import itertools
 import json
 import re
@@ -46,16 +46,25 @@ import pandas as pd
 
 from memsim.config import RunConfig
 from memsim.config.load import read_toml
-from memsim.errors import ConfigError, UserError
+from memsim.errors import ConfigError
+from memsim.experiment.batch import (
+    RESERVED,
+    choose_metrics,
+    derive_seeds,
+    execute,
+    flatten,
+    metric_hint,
+)
+from memsim.experiment.batch import (
+    check_key as _check_key,
+)
 from memsim.experiment.cache import RunCache, config_key, table_from_entry, write_frame
-from memsim.experiment.executors import Task, make_executor
+from memsim.experiment.executors import Task, check_workers
 from memsim.metrics.files import atomic_write_text, dumps, save_or_rescue
 from memsim.metrics.stats import summarize
 
 SECTIONS = ("sweep", "fixed", "grid", "zipped")
 SWEEP_KEYS = ("name", "base", "replications", "seeds", "base_seed", "metrics", "tables")
-# Seeds come from the replications and results always go to the sweep's folder.
-RESERVED = ("run.seed", "run.name", "run.out_dir")
 DEFAULT_TABLES = ("latency_histogram",)
 _NAME = re.compile(r"^[A-Za-z0-9_.-]+$")
 
@@ -96,40 +105,9 @@ class SweepSpec:
                 "metrics": self.metrics, "tables": list(self.tables), "varied": self.varied}
 
 
-def derive_seeds(base_seed: int, n: int) -> list[int]:
-    """Seeds of replications ``0 .. n-1``, each from ``SeedSequence(base_seed, spawn_key=(i,))``.
-
-    Replication ``i`` gets the same seed whatever ``n`` is, and the seeds are
-    well apart even for neighbouring base seeds.
-    """
-    return [int(np.random.SeedSequence(base_seed, spawn_key=(i,)).generate_state(1)[0]) for i in range(n)]
-
-
-def flatten(table: Mapping[str, Any], prefix: str = "") -> dict[str, Any]:
-    """Nested TOML tables -> dotted keys (``{"write": {"scheme": x}}`` -> ``{"write.scheme": x}``)."""
-    out: dict[str, Any] = {}
-    for k, v in table.items():
-        key = f"{prefix}{k}".replace("__", ".")
-        if isinstance(v, Mapping):
-            out.update(flatten(v, key + "."))
-        else:
-            out[key] = v
-    return out
-
-
 def check_key(key: str, where: str) -> None:
-    """Raise ConfigError unless ``key`` names a field of a run config (``section.field``)."""
-    parts = key.split(".")
-    sections = RunConfig.model_fields
-    if len(parts) != 2 or parts[0] not in sections:
-        raise ConfigError(where, f"unknown key '{key}'", "section.key with a section among "
-                          + ", ".join(sections))
-    fields = sections[parts[0]].annotation.model_fields
-    if parts[1] not in fields:
-        raise ConfigError(where, f"unknown key '{key}'", f"one of {parts[0]}." + f", {parts[0]}.".join(fields))
-    if key in RESERVED:
-        raise ConfigError(where, key, "a key other than " + ", ".join(RESERVED)
-                          + " (seeds come from sweep.replications/base_seed; the folder from sweep.name)")
+    """Raise ConfigError unless ``key`` names a field of a run config (``section.field``) a sweep may vary."""
+    _check_key(key, where, "seeds come from sweep.replications/base_seed; the folder from sweep.name")
 
 
 def _value_lists(table: Mapping[str, Any], where: str, same_length: bool = False) -> dict[str, list]:
@@ -346,14 +324,6 @@ def check_metrics(spec: SweepSpec, tasks: Sequence[Task], probe_points: int = 16
     raise ConfigError(f"{spec.source}: sweep.metrics", ", ".join(map(repr, missing)), metric_hint(missing, known))
 
 
-def metric_hint(missing: Sequence[str], known: Sequence[str]) -> str:
-    """A short 'allowed' for unknown metric names: the closest summary keys, not all of them."""
-    close = list(dict.fromkeys(c for m in missing for c in difflib.get_close_matches(m, known, n=3, cutoff=0.5)))
-    shown = close or list(known[:5])
-    return (f"summary keys such as {', '.join(shown)} ({len(known)} in all; "
-            "memsim run prints them)")
-
-
 def run_sweep(spec: SweepSpec, *, workers: int | None = None, scheduler: str | None = None,
               out: str | Path | None = None, progress: bool | None = None,
               level: float = 0.95, check: bool = True) -> SweepOutcome:
@@ -376,67 +346,28 @@ def run_sweep(spec: SweepSpec, *, workers: int | None = None, scheduler: str | N
     progress:
         Show a progress bar (None: only on a terminal).
     """
-    from tqdm import tqdm
-
-    if workers is not None and (isinstance(workers, bool) or workers < 1):
-        raise UserError("--workers", repr(workers), "a whole number >= 1")
+    check_workers(workers)
     rows, tasks, errors = plan(spec)
     folder = Path(out) if out is not None else None
     if check:
         check_metrics(spec, tasks)
     cache = RunCache(folder / "cache") if folder is not None else None
-    entries: dict[str, dict[str, Any]] = {}
-    if cache is not None:
-        for t in tasks:
-            if t is not None and t.key not in entries and (e := cache.get(t.key, spec.tables)) is not None:
-                entries[t.key] = e
-    todo: dict[str, Task] = {}
-    for t in tasks:
-        if t is not None and t.key not in entries:
-            todo.setdefault(t.key, t)
-    reused = sum(1 for t in tasks if t is not None and t.key in entries)
-    failures: dict[str, dict[str, Any]] = {}
-    bar = tqdm(total=len(tasks), initial=reused + tasks.count(None), desc=spec.name, unit="run",
-               disable=None if progress is None else not progress, dynamic_ncols=True)
-    todo_list = list(todo.values())
-    rows_of = pd.Series([t.key for t in tasks if t is not None]).value_counts().to_dict()
-    executor = make_executor(workers, scheduler) if todo_list else None
-    cache_error = ""
-    try:
-        for _, text in (executor.run(todo_list) if executor else ()):
-            doc = json.loads(text)
-            if "error" in doc:
-                failures[doc["key"]] = doc
-                bar.set_postfix(failed=len(failures))
-            else:
-                if cache is not None:
-                    try:
-                        cache.put_text(doc["key"], text)
-                    except OSError as exc:
-                        # Keep running: the results stay in memory and are saved at the end.
-                        cache_error = (f"{cache.folder}: cache entries could not be written "
-                                       f"({exc.strerror or exc}); the finished runs were kept in memory")
-                        cache = None
-                entries[doc["key"]] = doc
-            bar.update(rows_of[doc["key"]])
-    finally:
-        bar.close()
-        if executor is not None:
-            executor.close()
+    done = execute(tasks, workers=workers, scheduler=scheduler, cache=cache, tables=spec.tables,
+                   progress=progress, desc=spec.name)
+    entries, failures = done.entries, done.failures
     for i, t in enumerate(tasks):
-        if t is not None and t.key in failures:
+        if t.key in failures:
             errors[i] = failures[t.key]["error"]
     runs, metrics = assemble(spec, rows, tasks, errors, entries)
     stats = point_stats(runs, spec.varied, metrics, level=level)
     tables = gather_tables(spec, rows, tasks, entries)
-    outcome = SweepOutcome(runs, stats, tables, folder, ran=len(todo_list) - len(failures), reused=reused,
-                           failed=sum(1 for e in errors if e),
-                           tracebacks=[d["traceback"] for d in failures.values() if d.get("traceback")],
-                           executor=executor.name if executor is not None else "the cache")
+    outcome = SweepOutcome(runs, stats, tables, folder, ran=done.ran, reused=done.reused_runs,
+                           failed=sum(1 for e in errors if e), tracebacks=done.tracebacks,
+                           executor=done.executor)
     if folder is not None:
         saved, err = save_or_rescue(lambda f: save(outcome, spec, metrics, level, f), folder, spec.name)
         outcome.folder = saved
-        outcome.save_error = "; ".join(e for e in (cache_error, err) if e)
+        outcome.save_error = "; ".join(e for e in (done.cache_error, err) if e)
     return outcome
 
 
@@ -444,16 +375,7 @@ def assemble(spec: SweepSpec, rows: list[dict], tasks: list[Task | None], errors
              entries: Mapping[str, Mapping]) -> tuple[pd.DataFrame, list[str]]:
     """The tidy table (row per point x seed) and the metric columns it holds."""
     summaries = [entries[t.key]["summary"] if t is not None and t.key in entries else None for t in tasks]
-    known = list(dict.fromkeys(k for s in summaries if s for k, v in s.items()
-                               if isinstance(v, (int, float, bool, str)) or v is None))
-    if spec.metrics is None:
-        metrics = known
-    else:
-        missing = [m for m in spec.metrics if m not in known]
-        if missing and known:
-            raise ConfigError(f"{spec.source}: sweep.metrics", ", ".join(map(repr, missing)),
-                              metric_hint(missing, known))
-        metrics = list(spec.metrics)
+    metrics = choose_metrics(summaries, spec.metrics, f"{spec.source}: sweep.metrics")
     table = []
     for row, s, err, t in zip(rows, summaries, errors, tasks):
         r = dict(row)
@@ -581,3 +503,7 @@ def sweep(base: Any = None, grid: Mapping[str, Sequence[Any]] | None = None, *,
     spec = make_spec(base, grid, seeds=seeds, zipped=zipped, fixed=fixed, metrics=metrics,
                      tables=tables, name=name, base_seed=base_seed)
     return run_sweep(spec, workers=workers, scheduler=scheduler, out=out, progress=progress).runs
+
+
+__all__ = ["DEFAULT_TABLES", "RESERVED", "SweepOutcome", "SweepSpec", "check_key", "derive_seeds", "flatten",
+           "load_sweep", "make_spec", "metric_hint", "plan", "point_stats", "run_sweep", "sweep"]

@@ -96,12 +96,16 @@ def trace_summary(file: str | os.PathLike[str], *, skip_bad: bool = False, line_
 
 
 def available() -> dict[str, list[str]]:
-    """What a config may name, read from the registries: write schemes, wear
-    levelers, refresh policies and technology presets."""
-    from memsim.config import preset_names
-    from memsim.policy.leveling import leveler_names
-    from memsim.policy.refresh import POLICIES
-    from memsim.policy.write import scheme_names
+    """What a config may name, read from the registries (:mod:`memsim.experiment.names`):
+    write schemes, wear levelers, refresh policies, cleaner victim policies and
+    technology presets, each a list of names in registration order."""
+    from memsim.experiment.names import registries
 
-    return {"write_schemes": list(scheme_names()), "wear_levelers": list(leveler_names()),
-            "refresh_policies": list(POLICIES), "presets": list(preset_names())}
+    return {label: reg.names() for label, reg in registries().items()}
+
+
+def describe_available() -> dict[str, dict[str, str]]:
+    """As :func:`available`, with each name's one-line summary: ``{list: {name: summary}}``."""
+    from memsim.experiment.names import registries
+
+    return {label: reg.describe() for label, reg in registries().items()}

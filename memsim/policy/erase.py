@@ -43,6 +43,7 @@ from scipy.special import digamma, lambertw
 
 from memsim.errors import ConfigError, require_int
 from memsim.policy.leveling.base import Moves
+from memsim.policy.victims import VICTIMS
 
 # Placement modes returned by BlockPool.place.
 OUT_OF_PLACE = 0   # into an initialized line: only the opposite pulse is needed
@@ -56,7 +57,7 @@ SEALED = 2
 ERASING = 3
 
 INIT_STATES = {"reset": 0, "set": 1}            # initialized bit value
-VICTIM_POLICIES = ("greedy", "cost_benefit", "fifo")
+VICTIM_POLICIES: tuple[str, ...] = tuple(VICTIMS.names())     # the names (memsim.policy.victims)
 FALLBACKS = ("in_place", "wait")
 
 # Free blocks user writes may not take, so that the cleaner can always open a
@@ -116,7 +117,7 @@ class BlockPool:
         ``"greedy"`` (fewest live lines), ``"cost_benefit"`` (largest
         ``(1 - u) * age / (1 + u)``, ``u`` = live fraction, ``age`` = user
         writes since the newest data in the block was written) or ``"fifo"``
-        (the block sealed longest ago).
+        (the block sealed longest ago); the policies live in :mod:`memsim.policy.victims`.
     low_watermark:
         Cleaning is wanted while free blocks plus blocks being initialized are
         fewer than this (at least 2: one free block is kept for the cleaner).
@@ -159,8 +160,7 @@ class BlockPool:
                               "a number in (0, 1)")
         if init_state not in INIT_STATES:
             raise ConfigError("erase.init_state", repr(init_state), "'reset' or 'set'")
-        if victim not in VICTIM_POLICIES:
-            raise ConfigError("erase.victim", repr(victim), ", ".join(VICTIM_POLICIES))
+        victim_policy = VICTIMS.get_part(victim)
         if fallback not in FALLBACKS:
             raise ConfigError("erase.fallback", repr(fallback), ", ".join(FALLBACKS))
 
@@ -200,9 +200,7 @@ class BlockPool:
         self._state = np.full(self.n_blocks, FREE, dtype=np.int8)
         self._free: deque[int] = deque(range(data_blocks, self.n_blocks))
         self._n_erasing = 0
-        self._fifo: deque[int] = deque()
-        self._buckets: list[set[int]] = [set() for _ in range(B + 1)]
-        self._min_bucket = B + 1
+        self._victims = victim_policy(self)
         for b in range(data_blocks):
             self._live[b] = min(B, self.n_logical - b * B)
             self._seal(b)
@@ -378,29 +376,7 @@ class BlockPool:
         ``greedy`` and ``cost_benefit`` only consider sealed blocks with a
         stale line; ``fifo`` takes the oldest sealed block whatever it holds.
         """
-        B = self.block_lines
-        if self.victim == "greedy":
-            while self._min_bucket < B and not self._buckets[self._min_bucket]:
-                self._min_bucket += 1
-            if self._min_bucket >= B:
-                return None
-            return next(iter(self._buckets[self._min_bucket]))
-        if self.victim == "fifo":
-            # Strictly the oldest, even if all its lines are live: that is the
-            # policy the closed form describes.
-            return self._fifo[0] if self._fifo else None
-        live = self._live
-        cand = (self._state == SEALED) & (live < B)
-        if not cand.any():
-            return None
-        u = live / B
-        age = (self.clock - self._mtime).astype(np.float64)
-        score = np.where(cand, (1.0 - u) * age / (1.0 + u), -np.inf)
-        # All ages can be 0 at start; then prefer the emptiest candidate.
-        best = int(np.argmax(score))
-        if score[best] <= 0.0:
-            best = int(np.argmin(np.where(cand, live, np.inf)))
-        return best
+        return self._victims.pick()
 
     def clean(self) -> EraseJob | None:
         """Clean one victim: move its live lines to the move frontier (the map
@@ -515,31 +491,18 @@ class BlockPool:
 
     def _seal(self, b: int) -> None:
         self._state[b] = SEALED
-        if self.victim == "greedy":
-            n = self._live[b]
-            self._buckets[n].add(b)
-            if n < self._min_bucket:
-                self._min_bucket = n
-        elif self.victim == "fifo":
-            self._fifo.append(b)
+        self._victims.sealed(b)
 
     def _unseal(self, b: int) -> None:
-        if self.victim == "greedy":
-            self._buckets[self._live[b]].discard(b)
-        elif self.victim == "fifo":
-            self._fifo.popleft()        # the victim is always the oldest
+        self._victims.unsealed(b)
 
     def _invalidate(self, phys: int) -> None:
         self._p2l[phys] = -1
         b = phys // self.block_lines
         n = self._live[b]
         self._live[b] = n - 1
-        if self.victim == "greedy" and self._state[b] == SEALED:
-            bk = self._buckets
-            bk[n].discard(b)
-            bk[n - 1].add(b)
-            if n - 1 < self._min_bucket:
-                self._min_bucket = n - 1
+        if self._state[b] == SEALED:
+            self._victims.lost_line(b, int(n))
 
 
 def _i64(values: list[int]) -> np.ndarray:

@@ -20,16 +20,42 @@ in the device.
 from __future__ import annotations
 
 import math
+from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
+import numpy.typing as npt
 
+from memsim.config import RunConfig
 from memsim.errors import ConfigError
+from memsim.registry import Registry
 from memsim.tech.drift import error_table, refresh_age
 from memsim.tech.models import drift_params, mlc_cell
 from memsim.units import GIB, NS_PER_S
 
-POLICIES = ("none", "periodic", "drift", "scrub")
+
+@dataclass(frozen=True)
+class RefreshPolicy:
+    """A refresh policy: its name, what it does, and the device-time interval at which it
+    rewrites a line (NaN: it rewrites none on a schedule)."""
+
+    name: str
+    summary: str
+    interval_s: Callable[[float, float], float]     # (refresh.interval_s, refresh age s) -> interval s
+
+
+REFRESH_POLICIES: Registry[RefreshPolicy] = Registry("refresh policy", "refresh.policy")
+for _p in (
+    RefreshPolicy("none", "no refresh", lambda period, age: math.nan),
+    RefreshPolicy("periodic", "every line every refresh.interval_s", lambda period, age: period),
+    RefreshPolicy("drift", "a line when its age since its last write reaches the refresh age",
+                  lambda period, age: age),
+    RefreshPolicy("scrub", "a read that sees more than refresh.scrub_errors errors rewrites the line",
+                  lambda period, age: math.nan),
+):
+    REFRESH_POLICIES.add(_p)
+# The names, for callers that only need them.
+POLICIES: tuple[str, ...] = tuple(REFRESH_POLICIES.names())
 
 
 @dataclass
@@ -72,25 +98,25 @@ class RefreshPlan:
         x = np.log10(np.maximum(np.asarray(device_age_s, dtype=float), 1e-12))
         return np.interp(x, self.log_age_grid, grid, left=grid[0], right=grid[-1])
 
-    def rber(self, device_age_s) -> np.ndarray:
+    def rber(self, device_age_s: npt.ArrayLike) -> np.ndarray:
         """Raw bit error rate of a line of the given device age."""
         return self._interp(self.rber_grid, device_age_s)
 
-    def p_fail(self, device_age_s) -> np.ndarray:
+    def p_fail(self, device_age_s: npt.ArrayLike) -> np.ndarray:
         """Probability that a line of that age is uncorrectable."""
         return self._interp(self.p_fail_grid, device_age_s)
 
-    def device_age_s(self, sim_age_ns) -> np.ndarray:
+    def device_age_s(self, sim_age_ns: npt.ArrayLike) -> np.ndarray:
         return np.asarray(sim_age_ns, dtype=float) * self.scale / NS_PER_S
 
 
-def line_scale(cfg) -> float:
+def line_scale(cfg: RunConfig) -> float:
     """Device lines per modeled line (>= 1)."""
     device_lines = cfg.array.capacity_gib * GIB / cfg.array.line_bytes
     return max(1.0, device_lines / cfg.array.lines)
 
 
-def plan_refresh(cfg) -> RefreshPlan:
+def plan_refresh(cfg: RunConfig) -> RefreshPlan:
     """Refresh age and the engine-side plan of a config's refresh policy."""
     r = cfg.refresh
     cell, drift = mlc_cell(cfg), drift_params(cfg)
@@ -101,12 +127,7 @@ def plan_refresh(cfg) -> RefreshPlan:
     tab = error_table(cell, drift, ages, n_cells, r.correctable_bits, r.temperature_k,
                       method=r.fail_model)
     scale = line_scale(cfg)
-    if r.policy == "drift":
-        interval = ra.age_s
-    elif r.policy == "periodic":
-        interval = r.interval_s
-    else:
-        interval = math.nan
+    interval = REFRESH_POLICIES.get_part(r.policy).interval_s(r.interval_s, ra.age_s)
     threshold = interval * NS_PER_S / scale if math.isfinite(interval) else math.inf
     scan = threshold * r.scan_fraction if math.isfinite(threshold) else math.inf
     return RefreshPlan(r.policy, ra.age_s, ra.status, interval, scale, threshold, scan,

@@ -11,6 +11,8 @@ import numpy as np
 import pandas as pd
 from matplotlib.figure import Figure
 
+from memsim.metrics.result import RunResult, atomic_write_text
+
 CAUTION_SHORT = "architecture estimate (lumped thermal model), not a device design"
 
 
@@ -104,3 +106,16 @@ def plot_capping(table: pd.DataFrame, path: str | os.PathLike[str], spec_conduct
 
 def plot_scaling(table: pd.DataFrame, path: str | os.PathLike[str]) -> Path:
     return _save(scaling_figure(table), path)
+
+
+def save_cell(result: RunResult, folder: str | Path) -> list[Path]:
+    """Write a :func:`memsim.experiment.cell.cell_model` result into ``folder``: summary, tables, the preset, both figures."""
+    folder = Path(folder)
+    result.save(folder)
+    name = result.summary["cell"]
+    preset = folder / f"{name}_preset.toml"
+    atomic_write_text(preset, result.config["preset_toml"])
+    spec = result.config["spec"]
+    return [preset, plot_capping(result.tables["capping_sweep"], folder / "cell_capping.png",
+                                 spec["capping.conductivity_w_mk"], spec["access.current_limit_ua"]),
+            plot_scaling(result.tables["size_sweep"], folder / "cell_scaling.png")]

@@ -17,6 +17,7 @@ import pandas as pd
 from matplotlib.figure import Figure
 
 from memsim.metrics.files import atomic_write_bytes
+from memsim.metrics.result import RunResult
 
 _LEVEL_COL = re.compile(r"^rber_level_(\d+)$")
 
@@ -95,3 +96,14 @@ def plot_rber(
     fig.savefig(buf, format=out.suffix.lstrip(".") or "png", dpi=120)
     atomic_write_bytes(out, buf.getvalue())
     return out
+
+
+def save_drift_figure(result: RunResult, folder: str | Path) -> Path:
+    """Draw ``drift_rber.png`` of a :func:`memsim.experiment.drift.drift_report` result into ``folder``."""
+    s = result.summary
+    age = s["refresh_age_s"] if s["refresh_age_s"] is not None else s["retention_refresh_age_s"]
+    age = age if age is not None and math.isfinite(age) else None
+    what = ("drift and crystallization" if s["refresh_age_s"] is not None and s["retention_median_years"]
+            is not None else "crystallization only" if s["refresh_age_s"] is None else "drift only")
+    return plot_rber(result.tables["drift_errors_dense"], s["rber_limit"], age,
+                     Path(folder) / "drift_rber.png", subtitle=f"at {s['temperature_k']:g} K, {what}")

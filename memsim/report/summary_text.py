@@ -17,6 +17,7 @@ from typing import Any
 
 from memsim.units import split_unit
 
+
 @dataclass(frozen=True)
 class _Section:
     title: str

@@ -1,8 +1,10 @@
-"""Wear levelers: logical -> physical line maps, found by name.
+"""Wear levelers: logical -> physical line maps, found by name in :data:`LEVELERS`.
 
 Every scheme follows the contract in :mod:`memsim.policy.leveling.base`.
-Add a scheme by writing one module and one line in :data:`LEVELERS`; the CLI
-and config list the names from here.
+Add a scheme by writing one module and one line below; ``memsim list``,
+config validation and the description of ``leveling.scheme`` come from the
+registry, and its keyword-only constructor parameters are its
+``[leveling]`` keys.
 """
 from __future__ import annotations
 
@@ -19,12 +21,13 @@ from memsim.policy.leveling.randomized_start_gap import RandomizedStartGap
 from memsim.policy.leveling.region_start_gap import RegionStartGap
 from memsim.policy.leveling.security_refresh import SecurityRefresh
 from memsim.policy.leveling.start_gap import StartGap
+from memsim.registry import Registry
 
-LEVELERS: dict[str, type[Leveler]] = {
-    cls.name: cls
-    for cls in (NoLeveling, StartGap, RandomizedStartGap, RegionStartGap,
-                SecurityRefresh, HotColdSwap, BitRotation)
-}
+LEVELERS: Registry[type[Leveler]] = Registry("wear leveler", "leveling.scheme")
+# Listed by name (memsim list and error messages show them in this order).
+for _cls in sorted((NoLeveling, StartGap, RandomizedStartGap, RegionStartGap, SecurityRefresh, HotColdSwap,
+                    BitRotation), key=lambda c: c.name):
+    LEVELERS.add(_cls)
 
 __all__ = [
     "LEVELERS",
@@ -51,11 +54,7 @@ def leveler_params(name: str) -> dict[str, object]:
 
 
 def _lookup(name: str) -> type[Leveler]:
-    try:
-        return LEVELERS[name]
-    except KeyError:
-        raise ConfigError("leveling.scheme", repr(name),
-                          ", ".join(leveler_names())) from None
+    return LEVELERS.get_part(name)
 
 
 def make_leveler(name: str, n_logical: int, rng: np.random.Generator | None,
