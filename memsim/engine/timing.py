@@ -28,13 +28,14 @@ import numpy as np
 import simpy
 
 from memsim.engine.erase_agent import OUT_OF_PLACE, WAIT, EraseAgent
+from memsim.engine.ops import prepare_ops
 from memsim.engine.refresh_agent import URGENT, RefreshAgent
 from memsim.policy.refresh import RefreshPlan
 from memsim.policy.write.bits import popcount_rows
 from memsim.policy.writepath import WritePath
 from memsim.tech.array import AddressMap
 from memsim.tech.cell import CellTech
-from memsim.workload.chunk import HINT, READ, Chunk
+from memsim.workload.chunk import Chunk
 
 
 PRESET = -3        # queue-item index marking a hint's pre-programming
@@ -153,113 +154,37 @@ class TimingEngine:
 
     # ------------------------------------------------------------ preparation
     def _prepare(self, chunk: Chunk) -> _Prepared:
-        """Vectorized work for a chunk: remap, bit counts, service times, energy."""
-        tot, cell = self.totals, self.cell
-        keep = chunk.op != HINT
-        tot.hints += int((~keep).sum())
-        if not keep.all():
-            if self.hint_mode:
-                self._queue_hints(chunk.take(~keep))
-            chunk = chunk.take(keep)
-        n = len(chunk)
+        """Op columns of a chunk (see :mod:`memsim.engine.ops`) as admission entries."""
+        ops = prepare_ops(self, chunk)
+        n = ops.op.size
         prep = _Prepared(n)
-        prep.op[:] = chunk.op
-        prep.arrival = chunk.time_ns.tolist()
-        is_read = chunk.op == READ
-        w_idx = np.flatnonzero(~is_read)
-        tot.reads += int(is_read.sum())
-        tot.writes += int(w_idx.size)
-
-        # Reads see the map as it stands before this chunk's writes.
-        r_idx = np.flatnonzero(is_read)
-        r_phys = self.path.leveler.lookup(chunk.line[r_idx])
-        r_ch, r_bank, r_row = self.amap.locate(r_phys)
-        tot.read_pj += r_idx.size * self.line_bits * cell.read_pj
-
-        wb = self.path.apply(chunk.line[w_idx], None if chunk.data is None else chunk.data[w_idx])
-        w_ch, w_bank, _ = self.amap.locate(wb.phys)
-        moves = wb.user < 0
-        budget = self.round_budget_ua
-        if wb.program_ns is not None:             # multi-level cells: program-and-verify
-            program = wb.program_ns
-            pj = wb.program_pj
-            tot.mlc_pj += float(pj.sum())
-            cells = wb.n_set + wb.n_reset
-            per_round = max(1, int(budget // cell.reset_ua))
-            current = np.minimum(cells, per_round) * cell.reset_ua
-            rr = sr = np.zeros(cells.size, np.int64)           # no pause points inside
-        else:
-            program = self.cell.program_ns(wb.n_set, wb.n_reset, budget)
-            pj = cell.program_pj(wb.n_set, wb.n_reset)
-            if not self.cost_at_service:  # block erase, hints: counted when the bank decides
-                tot.set_pj += float(wb.n_set.sum()) * cell.set_pj
-                tot.reset_pj += float(wb.n_reset.sum()) * cell.reset_pj
-            cells = wb.n_set + wb.n_reset
-            per_reset, per_set = cell.cells_per_round(budget)
-            rr, sr = -(-wb.n_reset // per_reset), -(-wb.n_set // per_set)
-            # A write holds the peak current of its two phases while it programs.
-            current = np.maximum(np.minimum(wb.n_reset, per_reset) * cell.reset_ua,
-                                 np.minimum(wb.n_set, per_set) * cell.set_ua)
-        pre_read = self.path.scheme.pre_read
-        # A move reads its source line, then programs the destination.
-        pre = np.where(moves | pre_read, cell.read_ns, 0.0)
-        service = program + pre
-        extra_bits = self.line_bits + self.path.scheme.flag_cells
-        # Pre-reads of user writes: known now, unless the bank decides at
-        # service time (block erase, hints), where a write may skip it.
-        user_pre = int((~moves).sum()) if pre_read and not self.cost_at_service else 0
-        tot.read_pj += (int(moves.sum()) + user_pre) * extra_bits * cell.read_pj
-        if not self.cost_at_service:
-            tot.user_set_cells += int(wb.n_set[~moves].sum())
-            tot.user_reset_cells += int(wb.n_reset[~moves].sum())
-        tot.move_cells += int(wb.n_set[moves].sum() + wb.n_reset[moves].sum())
-        tot.move_writes += int(moves.sum())
-        tot.meta_writes += wb.meta_writes
-        tot.user_write_ns += float(service[~moves].sum())
-        if self.agent is not None and not self.closed:
-            self.agent.note_writes(chunk.time_ns[w_idx[wb.after]] if w_idx.size else np.empty(0), wb.phys)
-
+        prep.op[:] = ops.op
+        prep.arrival = ops.arrival.tolist()
         # Admission entries in arrival order: (time, is_read, bank, item).
         # Read item: (local index, channel, row, physical line).  Write item:
         # local index (-1 for a move), channel, service ns, uses bus, current
         # uA, pre-read ns, RESET rounds, SET rounds, programming pJ, cells,
         # physical line.
-        # A write's moves follow it (stable order by position in the chunk).
-        t = chunk.time_ns
-        w_req = np.where(moves, -1, w_idx[np.clip(wb.user, 0, None)] if w_idx.size else 0)
-        w_pos = w_idx[wb.after] if w_idx.size else np.empty(0, np.int64)
-        pos = np.concatenate([r_idx, w_pos])
-        order = np.argsort(pos, kind="stable")
-        nr = r_idx.size
-        w_cols = [w_req.tolist(), w_ch.tolist(), service.tolist(), (~moves).tolist(),
-                  current.tolist(), pre.tolist(), rr.tolist(), sr.tolist(), pj.tolist(),
-                  cells.tolist(), wb.phys.tolist()]
-        if self.out_of_place:
-            # Block erase: the cost of the out-of-place write (only the pulse
-            # opposite to the initial state, no pre-read) and of the in-place
-            # fallback (data-comparison counts); the bank picks at service.
-            o_set, o_reset = self.erase.oop_cost_from_ones(wb.ones)
-            o_ns = cell.program_ns(o_set, o_reset, budget)
+        order = ops.order
+        nr = ops.n_reads
+        w_cols = [ops.w_req.tolist(), ops.w_ch.tolist(), ops.service.tolist(), ops.uses_bus.tolist(),
+                  ops.current.tolist(), ops.pre.tolist(), ops.rr.tolist(), ops.sr.tolist(),
+                  ops.pj.tolist(), ops.cells.tolist(), ops.w_phys.tolist()]
+        if ops.alt is not None:
+            o_ns, o_set, o_reset = ops.alt
             w_cols.append(list(zip(o_ns.tolist(), o_set.tolist(), o_reset.tolist(),
-                                   wb.n_set.tolist(), wb.n_reset.tolist())))
-        elif self.hint_mode:
-            # A write to a line pre-programmed to all-SET from a hint needs
-            # only RESET pulses for its 0 bits and no pre-read.
-            o_reset = self.line_bits - wb.ones
-            o_ns = cell.program_ns(np.zeros_like(o_reset), o_reset, budget)
-            w_cols.append(list(zip(o_ns.tolist(), [0] * o_ns.size, o_reset.tolist(),
-                                   wb.n_set.tolist(), wb.n_reset.tolist())))
+                                   ops.n_set.tolist(), ops.n_reset.tolist())))
         if not self.extended:
             w_cols = w_cols[:4]        # the plain bank loop needs only these
-        items = (list(zip(r_idx.tolist(), r_ch.tolist(), r_row.tolist(), r_phys.tolist()))
+        items = (list(zip(ops.r_idx.tolist(), ops.r_ch.tolist(), ops.r_row.tolist(), ops.r_phys.tolist()))
                  + list(zip(*w_cols)))
         # Entries carry (prep, item) so the source hands them to a bank's
         # inbox as they are (no tuple per request on the hot path).
         paired = list(zip(repeat(prep), items))
         ordered = itemgetter(*order.tolist())(paired) if len(paired) > 1 else tuple(paired)
-        prep.entries = list(zip(t[pos[order]].tolist(), (order < nr).tolist(),
-                                np.concatenate([r_bank, w_bank])[order].tolist(), ordered))
-        prep.users = nr + int((~moves).sum())
+        prep.entries = list(zip(ops.t.tolist(), (order < nr).tolist(),
+                                np.concatenate([ops.r_bank, ops.w_bank])[order].tolist(), ordered))
+        prep.users = ops.users
         return prep
 
     # ------------------------------------------------------------ simulation
