@@ -122,6 +122,8 @@ class TimingEngine:
         The write path (leveler, write scheme, stored content, wear).
     """
 
+    name = "reference"
+
     def __init__(self, cfg, source: Iterable[Chunk], path: WritePath,
                  refresh: RefreshPlan | None = None, rng: np.random.Generator | None = None) -> None:
         self.cfg = cfg
