@@ -42,6 +42,9 @@ class RunSection(Section):
     seed: int = Field(1, ge=0, description="Seed of every random draw of the run.")
     out_dir: str = Field("results", description="Folder that receives the results folder.")
     chunk_requests: int = Field(65536, ge=1024, description="Requests generated per chunk.")
+    engine: Literal["fast", "reference"] = Field(
+        "fast", description="Timing engine: fast (compiled) or reference (simpy); a feature the fast "
+                            "engine lacks runs on the reference (summary key engine).")
 
 
 class CellSection(Section):

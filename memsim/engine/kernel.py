@@ -186,9 +186,7 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
     closed = pi[P_CLOSED] != 0
     limit = pi[P_LIMIT]
     extended = pi[P_EXT] != 0
-    can_cancel, can_pause = pi[P_CANCEL] != 0, pi[P_PAUSE] != 0
     npools = pi[P_NPOOLS]
-    cas = pi[P_CAS] != 0
     burst, read_ns, hit_ns = pf[F_BURST], pf[F_READ], pf[F_HIT]
     n_entries = c_t.shape[0]
     while True:

@@ -37,7 +37,6 @@ from memsim.tech.array import AddressMap
 from memsim.tech.cell import CellTech
 from memsim.workload.chunk import Chunk
 
-
 PRESET = -3        # queue-item index marking a hint's pre-programming
 
 

@@ -10,6 +10,7 @@ import numpy as np
 
 from memsim import __version__
 from memsim.config import RunConfig, load_config
+from memsim.engine.fast import make_engine
 from memsim.engine.refresh_agent import RefreshAgent
 from memsim.engine.timing import TimingEngine, TimingTotals
 from memsim.experiment.build import build_path, build_source, check_names, source_fields
@@ -147,9 +148,10 @@ def simulate(config: str | Path | Mapping | RunConfig | None = None, **overrides
     path = build_path(cfg, rng)
     source = build_source(cfg, rng)
     plan = plan_refresh(cfg)
-    engine = TimingEngine(cfg, source, path, plan, np.random.default_rng([cfg.run.seed, 1]))
+    engine = make_engine(cfg, source, path, plan, np.random.default_rng([cfg.run.seed, 1]))
     tot = engine.run()
     summary = summarize(cfg, tot, path)
+    summary["engine"] = engine.name
     summary.update(refresh_fields(tot, engine.agent, summary))
     summary.update(erase_fields(engine, summary))
     summary.update(source_fields(source))
