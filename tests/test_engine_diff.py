@@ -159,3 +159,44 @@ def test_gap_falls_back_to_reference(extra, gap):
     assert eng.name == "reference"
     s = simulate(None, overrides={"workload.requests": 2000, **extra}).summary
     assert s["engine"] == "reference"
+
+
+INACTIVE = {
+    # A shared budget far above what all banks can draw at once never binds.
+    "power budget that never binds": {"power.budget_ua": 1e12},
+    "hint_preset without hints": {"controller.hint_preset": True},
+    # Without reads nothing can cancel or pause a write.
+    "cancellation without reads": {"controller.write_cancel": True, "controller.cancel_before": 1.0,
+                                   "workload.read_fraction": 0.0},
+    "pausing without reads": {"controller.write_pause": True, "workload.read_fraction": 0.0},
+}
+
+
+@pytest.mark.parametrize("engine", ["fast", "reference"])
+@pytest.mark.parametrize("extra", INACTIVE.values(), ids=INACTIVE.keys())
+def test_inactive_feature_changes_nothing(extra, engine):
+    base = {"workload.requests": 20000, "write.scheme": "full_line", "workload.interval_ns": 120.0,
+            "run.engine": engine, **{k: v for k, v in extra.items() if k.startswith("workload.")}}
+    off = simulate(None, overrides=base).summary
+    on = simulate(None, overrides={**base, **extra}).summary
+    assert on.keys() == off.keys()
+    for k in off:
+        assert _same(on[k], off[k]), k
+
+
+@pytest.mark.parametrize("cls", [FastEngine, TimingEngine])
+def test_refresh_policy_none_changes_nothing(cls):
+    ov = {"workload.requests": 20000, "refresh.policy": "none"}
+    cfg = load_config(None, ov)
+    runs = []
+    for plan in (None, plan_refresh(cfg)):
+        rng = np.random.default_rng(cfg.run.seed)
+        path = build_path(cfg, rng)
+        tot = cls(cfg, build_source(cfg, rng), path, plan, np.random.default_rng(1)).run()
+        runs.append((tot, path))
+    (a, pa), (b, pb) = runs
+    np.testing.assert_array_equal(a.finish_ns, b.finish_ns)
+    np.testing.assert_array_equal(pa.line_cells, pb.line_cells)
+    for k, v in vars(a).items():
+        if not isinstance(v, np.ndarray):
+            assert _same(getattr(b, k), v), k

@@ -15,7 +15,7 @@ import numpy as np
 from memsim.engine import kernel as K
 from memsim.engine.ops import OpColumns, prepare_ops
 from memsim.engine.refresh_agent import RefreshAgent
-from memsim.engine.timing import TimingEngine, TimingTotals
+from memsim.engine.timing import TimingEngine, TimingTotals, price_energy
 from memsim.policy.refresh import RefreshPlan
 from memsim.policy.writepath import WritePath
 from memsim.workload.chunk import Chunk
@@ -68,19 +68,19 @@ class FastEngine(TimingEngine):
         pi[K.P_NPOOLS], pi[K.P_CAS] = n_pools, self.cost_at_service
         per_reset, per_set = self.cell.cells_per_round(self.round_budget_ua)
         pi[K.P_PER_RESET], pi[K.P_PER_SET] = per_reset, per_set
+        pi[K.P_EXTRA_BITS] = self.line_bits + self.path.scheme.flag_cells
         cell = self.cell
         self.pf = pf = np.zeros(K.N_PF)
         pf[K.F_BURST], pf[K.F_READ], pf[K.F_HIT] = cfg.array.burst_ns, cell.read_ns, cfg.array.row_hit_ns
         pf[K.F_CANCEL_BEFORE], pf[K.F_RESET_NS], pf[K.F_SET_NS] = c.cancel_before, cell.reset_ns, cell.set_ns
         pf[K.F_POOL_CAP] = p.budget_ua
-        pf[K.F_SET_PJ], pf[K.F_RESET_PJ] = cell.set_pj, cell.reset_pj
-        pf[K.F_EXTRA_READ_PJ] = (self.line_bits + self.path.scheme.flag_cells) * cell.read_pj
         pf[K.F_RESET_UA], pf[K.F_SET_UA] = cell.reset_ua, cell.set_ua
         self.ist = np.zeros(K.N_IST, np.int64)
         self.fst = np.zeros(K.N_FST)
-        self.ht = np.zeros(nb + 1)
-        self.hs = np.zeros(nb + 1, np.int64)
-        self.hp = np.zeros(nb + 1, np.int64)
+        # One pending event per process, plus at most one current return per bank.
+        self.ht = np.zeros(2 * nb + 2)
+        self.hs = np.zeros(2 * nb + 2, np.int64)
+        self.hp = np.zeros(2 * nb + 2, np.int64)
         self.bi = np.zeros((nb, K.N_BI), np.int64)
         self.bi[:, K.B_ROW] = -1
         self.bf = np.zeros((nb, K.N_BF))
@@ -160,11 +160,7 @@ class FastEngine(TimingEngine):
                 np.ascontiguousarray(c_i[o]))
 
     def _call(self, cols, base: int) -> int:
-        tot = self.totals
         fst, ist = self.fst, self.ist
-        # Energy the bank counts at service shares its accumulators with the
-        # chunk preparation, in the same order as the reference.
-        fst[K.SET_PJ], fst[K.RESET_PJ], fst[K.READ_PJ] = tot.set_pj, tot.reset_pj, tot.read_pj
         while True:
             status = K.run_kernel(
                 self.pi, self.pf, ist, fst, self.ht, self.hs, self.hp, self.bi, self.bf,
@@ -181,8 +177,6 @@ class FastEngine(TimingEngine):
             if status == K.FAILED:
                 raise RuntimeError("fast engine: a power-pool return had to wait (not modeled)")
             break
-        tot.set_pj, tot.reset_pj, tot.read_pj = float(fst[K.SET_PJ]), float(fst[K.RESET_PJ]), float(
-            fst[K.READ_PJ])
         return status
 
     def _flush_cancel_wear(self) -> None:
@@ -240,6 +234,10 @@ class FastEngine(TimingEngine):
         tot.pauses = int(ist[K.PAUSES])
         tot.user_set_cells += int(ist[K.USER_SET])
         tot.user_reset_cells += int(ist[K.USER_RESET])
+        tot.set_cells += int(ist[K.SET_CELLS])
+        tot.reset_cells += int(ist[K.RESET_CELLS])
+        tot.read_bits += int(ist[K.READ_BITS])
+        price_energy(tot, self.cell)
         if self.agent is not None:
             self.agent.finish(tot.simulated_ns)
             tot.refresh_pj = self.agent.energy_pj

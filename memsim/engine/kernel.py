@@ -22,18 +22,18 @@ from numba import njit
 # ---- integer state (ist)
 SEQ, HSIZE, SRC_K, SRC_POS, SRC_RUN, IN_FLIGHT, SRC_DONE, SLOT_WAIT, FREE_TOP = range(9)
 CANCELS, PAUSES, CANC_CELLS, CLOG_N, USER_SET, USER_RESET, SRC_B, ERROR = range(9, 17)
-N_IST = 17
+SET_CELLS, RESET_CELLS, READ_BITS = range(17, 20)
+N_IST = 20
 # ---- float state (fst)
-NOW, SRC_T, POWER_WAIT, CANC_PJ, SET_PJ, RESET_PJ, READ_PJ = range(7)
-N_FST = 7
+NOW, SRC_T, POWER_WAIT, CANC_PJ = range(4)
+N_FST = 4
 # ---- integer parameters (pi)
 P_NB, P_RCAP, P_WCAP, P_HIGH, P_LOW, P_IDLEW, P_CLOSED, P_LIMIT, P_EXT, P_CANCEL, P_PAUSE, \
-    P_NPOOLS, P_CAS, P_PER_RESET, P_PER_SET = range(15)
-N_PI = 15
+    P_NPOOLS, P_CAS, P_PER_RESET, P_PER_SET, P_EXTRA_BITS = range(16)
+N_PI = 16
 # ---- float parameters (pf)
-F_BURST, F_READ, F_HIT, F_CANCEL_BEFORE, F_RESET_NS, F_SET_NS, F_POOL_CAP, F_SET_PJ, F_RESET_PJ, \
-    F_EXTRA_READ_PJ, F_RESET_UA, F_SET_UA = range(12)
-N_PF = 12
+F_BURST, F_READ, F_HIT, F_CANCEL_BEFORE, F_RESET_NS, F_SET_NS, F_POOL_CAP, F_RESET_UA, F_SET_UA = range(9)
+N_PF = 9
 # ---- per-bank integers (bi)
 B_KIND, B_SLOT, B_DRAIN, B_ROW, B_IDLE, B_SPACE, B_WDRAIN, B_AGAIN, B_DONE = range(9)
 N_BI = 9
@@ -46,7 +46,7 @@ N_SF = 5
 SI_READ, SI_REQ, SI_CH, SI_ROW, SI_PHYS, SI_BUS, SI_RR, SI_SR, SI_CELLS, SI_NSET, SI_NRESET = range(11)
 N_SI = 11
 # ---- resume points of a bank
-K_RUN, K_DONE, K_GOT, K_WDONE, K_PUT = range(5)
+K_RUN, K_DONE, K_GOT, K_WDONE = range(4)
 # ---- resume points of the source
 S_NEXT, S_SLOT, S_HAND, S_AFTER_T, S_SPACECHK, S_SPACE = range(6)
 # ---- kernel status
@@ -154,16 +154,25 @@ def _admit(b, now, sf, si, ib, ibh, ibn, rq, rqh, rqn, wq, wqh, wqn, rpend, wpen
 
 
 @njit(cache=True)
-def _trigger_get(p, pool_level, pq, pqh, pqn, bf, ist, fst, ht, hs, hp):
-    """simpy Container: serve waiting gets from the head while they fit."""
+def _trigger_get(p, me, pool_level, pq, pqh, pqn, bf, ist, fst, ht, hs, hp):
+    """simpy Container: serve waiting gets from the head while they fit.
+
+    Bank ``me`` (or -1) is asking now: if it is served, it does not wait
+    for an event (the reference does not yield then); True if so.
+    """
+    served = False
     while pqn[p] > 0:
         b = pq[p, pqh[p]]
         if pool_level[p] >= bf[b, BF_NEED]:
             pool_level[p] -= bf[b, BF_NEED]
             _q_pop(pq, pqh, pqn, p)
-            _push(ht, hs, hp, ist, fst[NOW], b)
+            if b == me:
+                served = True
+            else:
+                _push(ht, hs, hp, ist, fst[NOW], b)
         else:
             break
+    return served
 
 
 @njit(cache=True)
@@ -200,6 +209,10 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
             t, pid = _pop(ht, hs, hp, ist)
             fst[NOW] = t
         now = fst[NOW]
+        if pid > src:
+            # A returned current is processed: waiting writes may start.
+            _trigger_get(pid - src - 1, -1, pool_level, pq, pqh, pqn, bf, ist, fst, ht, hs, hp)
+            continue
         if pid == src:
             # ------------------------------------------------------ source
             ist[SRC_RUN] = 1
@@ -300,30 +313,26 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
             top = False
             _write_go(b, now, pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, ib, ibh, ibn, rqn,
                       bus_free, clog)
-        elif kind == K_WDONE or kind == K_PUT:
+        elif kind == K_WDONE:
             need = bf[b, BF_NEED]
-            if kind == K_WDONE and need > 0:
+            if need > 0:
+                # Give the current back; waiting writes get it when the
+                # return is processed (a later event at this time).
                 p = 0 if npools == 1 else si[bi[b, B_SLOT], SI_CH]
                 if pf[F_POOL_CAP] - pool_level[p] >= need:
                     pool_level[p] += need
                 else:
-                    ist[ERROR] = 1        # a put that must wait: not modeled
+                    ist[ERROR] = 1        # a return that must wait: not modeled
                     return FAILED
-                bi[b, B_KIND] = K_PUT
-                _push(ht, hs, hp, ist, now, b)
-                top = False
+                _push(ht, hs, hp, ist, now, src + 1 + p)
+            s = bi[b, B_SLOT]
+            if bi[b, B_AGAIN] != 0:
+                _q_push_front(wq, wqh, wqn, b, s)
             else:
-                if kind == K_PUT:
-                    p = 0 if npools == 1 else si[bi[b, B_SLOT], SI_CH]
-                    _trigger_get(p, pool_level, pq, pqh, pqn, bf, ist, fst, ht, hs, hp)
-                s = bi[b, B_SLOT]
-                if bi[b, B_AGAIN] != 0:
-                    _q_push_front(wq, wqh, wqn, b, s)
-                else:
-                    req = si[s, SI_REQ]
-                    if req >= 0:
-                        _complete(req, now, finish, ist, ht, hs, hp, src)
-                    _free(s, free, ist)
+                req = si[s, SI_REQ]
+                if req >= 0:
+                    _complete(req, now, finish, ist, ht, hs, hp, src)
+                _free(s, free, ist)
         if not top:
             continue
         # ---- the bank's loop
@@ -431,8 +440,8 @@ def _write_start(b, s, draining, now, pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, 
         # Cost decided at service (hint mode without a pre-programmed line:
         # the in-place form); counted in service order like the reference.
         n_set, n_reset = si[s, SI_NSET], si[s, SI_NRESET]
-        fst[SET_PJ] += n_set * pf[F_SET_PJ]
-        fst[RESET_PJ] += n_reset * pf[F_RESET_PJ]
+        ist[SET_CELLS] += n_set
+        ist[RESET_CELLS] += n_reset
         ist[USER_SET] += n_set
         ist[USER_RESET] += n_reset
         a = min(n_reset, pi[P_PER_RESET]) * pf[F_RESET_UA]
@@ -441,7 +450,7 @@ def _write_start(b, s, draining, now, pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, 
         si[s, SI_RR] = 0
         si[s, SI_SR] = 0
         if sf[s, SF_PRE] > 0 and si[s, SI_REQ] >= 0:
-            fst[READ_PJ] += pf[F_EXTRA_READ_PJ]
+            ist[READ_BITS] += pi[P_EXTRA_BITS]
     bi[b, B_WDRAIN] = 1 if draining else 0
     bf[b, BF_T0] = now
     need = 0.0
@@ -453,8 +462,8 @@ def _write_start(b, s, draining, now, pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, 
         p = 0 if pi[P_NPOOLS] == 1 else si[s, SI_CH]
         _q_push(pq, pqh, pqn, p, b)
         bi[b, B_KIND] = K_GOT
-        _trigger_get(p, pool_level, pq, pqh, pqn, bf, ist, fst, ht, hs, hp)
-        return
+        if not _trigger_get(p, b, pool_level, pq, pqh, pqn, bf, ist, fst, ht, hs, hp):
+            return                      # wait for the current
     _write_go(b, now, pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, ib, ibh, ibn, rqn, bus_free, clog)
 
 
@@ -471,7 +480,8 @@ def _write_go(b, now, pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, ib, ibh, ibn
         lead = bus_free[ch] - now
     prog_start = now + lead + pre
     end = now + lead + service
-    stop = end
+    # Bus lead plus service, as in the plain bank loop.
+    dur = lead + service
     again = 0
     idx = si[s, SI_REQ]
     if (idx >= 0 and bi[b, B_WDRAIN] == 0 and (pi[P_CANCEL] != 0 or pi[P_PAUSE] != 0)
@@ -496,6 +506,7 @@ def _write_go(b, now, pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, ib, ibh, ibn
             span = end - prog_start
             if pi[P_CANCEL] != 0 and t_r < prog_start + pf[F_CANCEL_BEFORE] * span:
                 stop = t_r if t_r > now else now
+                dur = stop - now
                 if span > 0:
                     d = stop - prog_start
                     done = (d if d > 0.0 else 0.0) / span
@@ -525,7 +536,7 @@ def _write_go(b, now, pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, ib, ibh, ibn
                     boundary = rr * rns + j * sns
                     left0, left1 = 0, sr - np.int64(j)
                 if left0 + left1 > 0:
-                    stop = prog_start + boundary
+                    dur = prog_start + boundary - now
                     ist[PAUSES] += 1
                     sf[s, SF_SERVICE] = left0 * rns + left1 * sns
                     si[s, SI_BUS] = 0
@@ -536,7 +547,6 @@ def _write_go(b, now, pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, ib, ibh, ibn
                     si[s, SI_CELLS] = 0
                     again = 1
     bi[b, B_AGAIN] = again
-    dur = stop - now
-    bf[b, BF_BUSY] += stop - bf[b, BF_T0]
+    bf[b, BF_BUSY] += (now - bf[b, BF_T0]) + dur
     bi[b, B_KIND] = K_WDONE
     _push(ht, hs, hp, ist, now + dur, b)

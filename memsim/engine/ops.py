@@ -87,7 +87,7 @@ def prepare_ops(eng, chunk: Chunk) -> OpColumns:
     r_idx = np.flatnonzero(is_read)
     r_phys = eng.path.leveler.lookup(chunk.line[r_idx])
     r_ch, r_bank, r_row = eng.amap.locate(r_phys)
-    tot.read_pj += r_idx.size * eng.line_bits * cell.read_pj
+    tot.read_bits += r_idx.size * eng.line_bits
 
     wb = eng.path.apply(chunk.line[w_idx], None if chunk.data is None else chunk.data[w_idx])
     w_ch, w_bank, _ = eng.amap.locate(wb.phys)
@@ -105,8 +105,8 @@ def prepare_ops(eng, chunk: Chunk) -> OpColumns:
         program = cell.program_ns(wb.n_set, wb.n_reset, budget)
         pj = cell.program_pj(wb.n_set, wb.n_reset)
         if not eng.cost_at_service:  # block erase, hints: counted when the bank decides
-            tot.set_pj += float(wb.n_set.sum()) * cell.set_pj
-            tot.reset_pj += float(wb.n_reset.sum()) * cell.reset_pj
+            tot.set_cells += int(wb.n_set.sum())
+            tot.reset_cells += int(wb.n_reset.sum())
         cells = wb.n_set + wb.n_reset
         per_reset, per_set = cell.cells_per_round(budget)
         rr, sr = -(-wb.n_reset // per_reset), -(-wb.n_set // per_set)
@@ -121,7 +121,7 @@ def prepare_ops(eng, chunk: Chunk) -> OpColumns:
     # Pre-reads of user writes: known now, unless the bank decides at
     # service time (block erase, hints), where a write may skip it.
     user_pre = int((~moves).sum()) if pre_read and not eng.cost_at_service else 0
-    tot.read_pj += (int(moves.sum()) + user_pre) * extra_bits * cell.read_pj
+    tot.read_bits += (int(moves.sum()) + user_pre) * extra_bits
     if not eng.cost_at_service:
         tot.user_set_cells += int(wb.n_set[~moves].sum())
         tot.user_reset_cells += int(wb.n_reset[~moves].sum())

@@ -54,9 +54,14 @@ class TimingTotals:
     move_writes: int = 0
     meta_writes: int = 0
     hints: int = 0
-    read_pj: float = 0.0
-    set_pj: float = 0.0
+    read_pj: float = 0.0             # read_bits x read energy per bit (set at the end)
+    set_pj: float = 0.0              # set_cells x SET energy per cell (set at the end)
     reset_pj: float = 0.0
+    # Energy is counted in cells and bits and priced once at the end, so the
+    # sum does not depend on whether it was counted per chunk or per write.
+    read_bits: int = 0               # bits read: reads, pre-reads, move source reads
+    set_cells: int = 0               # SET pulses of every write and move (SLC)
+    reset_cells: int = 0
     mlc_pj: float = 0.0              # program-and-verify energy of multi-level cells
     refresh_pj: float = 0.0          # refresh reads and reprogramming
     erase_pj: float = 0.0            # block erase-ahead: cleaner moves and bulk initialization
@@ -80,6 +85,13 @@ class TimingTotals:
     @property
     def requests(self) -> int:
         return self.reads + self.writes
+
+
+def price_energy(tot: TimingTotals, cell: CellTech) -> None:
+    """Energy of the counted bits and cells (once, at the end of a run)."""
+    tot.read_pj = tot.read_bits * cell.read_pj
+    tot.set_pj = tot.set_cells * cell.set_pj
+    tot.reset_pj = tot.reset_cells * cell.reset_pj
 
 
 class _Wake(simpy.Event):
@@ -513,21 +525,25 @@ class TimingEngine:
                 service, pre, n_set, n_reset = o_ns, 0.0, o_set, o_reset
             else:
                 n_set, n_reset = i_set, i_reset
-            tot.set_pj += n_set * cell.set_pj
-            tot.reset_pj += n_reset * cell.reset_pj
+            tot.set_cells += n_set
+            tot.reset_cells += n_reset
             tot.user_set_cells += n_set
             tot.user_reset_cells += n_reset
             per_reset, per_set = cell.cells_per_round(self.round_budget_ua)
             cur = max(min(n_reset, per_reset) * cell.reset_ua, min(n_set, per_set) * cell.set_ua)
             rr = sr = 0            # no cancellation or pausing of these writes
         if pre > 0 and idx >= 0 and self.cost_at_service:
-            tot.read_pj += (self.line_bits + self.path.scheme.flag_cells) * cell.read_pj
+            tot.read_bits += self.line_bits + self.path.scheme.flag_cells
         t0 = env.now
         pool = self.pools[ch if len(self.pools) > 1 else 0] if self.pools else None
         need = min(cur, pool.capacity) if pool is not None else 0.0
         if need > 0:
-            yield pool.get(need)
-            tot.power_wait_ns += env.now - t0
+            # Wait only when the current is not free now: a budget that never
+            # binds must not move the write behind other events of this time.
+            got = pool.get(need)
+            if not got.triggered:
+                yield got
+                tot.power_wait_ns += env.now - t0
         now = env.now
         lead = 0.0
         if uses_bus:
@@ -537,13 +553,16 @@ class TimingEngine:
             lead = bus_free[ch] - now
         prog_start = now + lead + pre
         end = now + lead + service
-        stop, again = end, None
+        # The same sum as the plain bank loop (bus lead + service), so that
+        # switching on a feature that does not act changes no number.
+        dur, again = lead + service, None
         if idx >= 0 and not draining and (c.write_cancel or c.write_pause) and len(item) <= 11:
             t_r = self._next_read(b, now, end)
             if t_r is not None:
                 span = end - prog_start
                 if c.write_cancel and t_r < prog_start + c.cancel_before * span:
                     stop = max(t_r, now)      # a read that came while we waited for current
+                    dur = stop - now
                     done = max(0.0, stop - prog_start) / span if span > 0 else 0.0
                     tot.cancellations += 1
                     tot.cancelled_pj += done * pj
@@ -561,17 +580,16 @@ class TimingEngine:
                         j = -(-(e - rr * rns) // sns)
                         boundary, left = rr * rns + j * sns, (0, sr - int(j))
                     if left[0] + left[1] > 0:
-                        stop = prog_start + boundary
+                        dur = prog_start + boundary - now
                         tot.pauses += 1
                         rest = left[0] * rns + left[1] * sns
                         again = (idx, ch, rest, False, cur, 0.0, left[0], left[1], 0.0, 0, phys)
-        dur = stop - now
-        self.totals.bank_busy_ns[b] += stop - t0
+        self.totals.bank_busy_ns[b] += (now - t0) + dur
         if refresh:
             tot.refresh_busy_ns += dur
         yield env.timeout(dur)
         if need > 0:
-            yield pool.put(need)
+            pool.put(need)      # never waits: only what was taken comes back
         if again is not None:
             self.wq[b].appendleft((prep, again))
         elif idx == PRESET:
@@ -628,6 +646,7 @@ class TimingEngine:
             tot.arrival_ns = np.concatenate([np.asarray(p.arrival, float) for p in self.prepared])
         tot.simulated_ns = float(np.nanmax(tot.finish_ns)) if tot.finish_ns.size else 0.0
         tot.bank_busy_ns = np.asarray(tot.bank_busy_ns, dtype=float)
+        price_energy(tot, self.cell)
         if self.agent is not None:
             self.agent.finish(tot.simulated_ns)
             tot.refresh_pj = self.agent.energy_pj
