@@ -45,6 +45,8 @@ class RunSection(Section):
     engine: Literal["fast", "reference"] = Field(
         "fast", description="Timing engine: fast (compiled) or reference (simpy); a feature the fast "
                             "engine lacks runs on the reference (summary key engine).")
+    keep_requests: bool = Field(False, description="Keep per-request arrival and finish times in memory "
+                                                   "(the summary never needs them).")
 
 
 class CellSection(Section):

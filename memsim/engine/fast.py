@@ -15,6 +15,7 @@ import numpy as np
 from memsim.engine import kernel as K
 from memsim.engine.ops import OpColumns, prepare_ops
 from memsim.engine.refresh_agent import RefreshAgent
+from memsim.engine.stream import LatencyStream
 from memsim.engine.timing import TimingEngine, TimingTotals, price_energy
 from memsim.policy.refresh import RefreshPlan
 from memsim.policy.writepath import WritePath
@@ -106,11 +107,18 @@ class FastEngine(TimingEngine):
             K._push(self.ht, self.hs, self.hp, self.ist, 0.0, pid)
         self.ist[K.SRC_RUN] = 0
         self.ist[K.SRC_K] = K.S_NEXT
-        cap = 1 << 16
+        # Per-request arrays only on request (run.keep_requests); the
+        # statistics stream in fixed memory.
+        self.keep = bool(getattr(cfg.run, "keep_requests", False))
+        cap = 1 << 16 if self.keep else 0
         self.arrival = np.full(cap, np.nan)
         self.finish = np.full(cap, np.nan)
         self.op = np.zeros(cap, np.int8)
         self.n_req = 0
+        self.stream = LatencyStream()
+        self.done_f = np.zeros((1 << 16, 2))
+        self.done_i = np.zeros((1 << 16, 2), np.int64)
+        self.max_finish = 0.0
 
     def _grow_slots(self) -> None:
         n = self.sf.shape[0]
@@ -126,6 +134,9 @@ class FastEngine(TimingEngine):
     def _take_requests(self, ops: OpColumns) -> int:
         """Append a chunk's requests to the per-request arrays; its first global index."""
         base, n = self.n_req, ops.op.size
+        self.n_req = base + n
+        if not self.keep:
+            return base
         if base + n > self.arrival.size:
             cap = max(2 * self.arrival.size, base + n)
             for name, fill in (("arrival", np.nan), ("finish", np.nan), ("op", 0)):
@@ -135,7 +146,6 @@ class FastEngine(TimingEngine):
                 setattr(self, name, new)
         self.arrival[base:base + n] = ops.arrival
         self.op[base:base + n] = ops.op
-        self.n_req = base + n
         return base
 
     @staticmethod
@@ -167,8 +177,9 @@ class FastEngine(TimingEngine):
                 self.sf, self.si, self.free, self.ib, self.ibh, self.ibn, self.rq, self.rqh, self.rqn,
                 self.wq, self.wqh, self.wqn, self.rpend, self.wpend, self.bus_free, self.pool_level,
                 self.pq, self.pqh, self.pqn, cols[0], cols[1], cols[2], cols[3], base,
-                self.arrival, self.finish, self.clog)
+                self.done_f, self.done_i, self.clog)
             self._flush_cancel_wear()
+            self._flush_done()
             if status == K.NEED_SLOTS:
                 self._grow_slots()
                 continue
@@ -186,6 +197,18 @@ class FastEngine(TimingEngine):
         if n:
             self.cancel_wear(self.clog[:n, 0], self.clog[:n, 1])
             self.ist[K.CLOG_N] = 0
+
+    def _flush_done(self) -> None:
+        n = int(self.ist[K.DONE_N])
+        if not n:
+            return
+        f, i = self.done_f[:n], self.done_i[:n]
+        self.stream.add(i[:, 1], f[:, 0], f[:, 1])
+        self.max_finish = max(self.max_finish, float(f[:, 1].max()))
+        if self.keep:
+            self.finish[i[:, 0]] = f[:, 1]
+            self.arrival[i[:, 0]] = f[:, 0]     # closed loop: the time of hand-over
+        self.ist[K.DONE_N] = 0
 
     def cancel_wear(self, phys: np.ndarray, wasted: np.ndarray) -> None:
         """Cells programmed by aborted writes (the reference counts them one by one)."""
@@ -220,12 +243,13 @@ class FastEngine(TimingEngine):
 
     def _finish_fast(self, nb: int) -> TimingTotals:
         tot, ist, fst = self.totals, self.ist, self.fst
-        n = self.n_req
+        n = self.n_req if self.keep else 0
         tot.arrival_ns = self.arrival[:n].copy()
         tot.finish_ns = self.finish[:n].copy()
         tot.op = self.op[:n].copy()
         tot.latency_ns = tot.finish_ns - tot.arrival_ns
-        tot.simulated_ns = float(np.nanmax(tot.finish_ns)) if n else 0.0
+        tot.stream = self.stream
+        tot.simulated_ns = self.max_finish
         tot.bank_busy_ns = self.bf[:, K.BF_BUSY].copy()
         tot.power_wait_ns = float(fst[K.POWER_WAIT])
         tot.cancellations = int(ist[K.CANCELS])

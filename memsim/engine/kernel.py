@@ -22,8 +22,8 @@ from numba import njit
 # ---- integer state (ist)
 SEQ, HSIZE, SRC_K, SRC_POS, SRC_RUN, IN_FLIGHT, SRC_DONE, SLOT_WAIT, FREE_TOP = range(9)
 CANCELS, PAUSES, CANC_CELLS, CLOG_N, USER_SET, USER_RESET, SRC_B, ERROR = range(9, 17)
-SET_CELLS, RESET_CELLS, READ_BITS = range(17, 20)
-N_IST = 20
+SET_CELLS, RESET_CELLS, READ_BITS, DONE_N = range(17, 21)
+N_IST = 21
 # ---- float state (fst)
 NOW, SRC_T, POWER_WAIT, CANC_PJ = range(4)
 N_FST = 4
@@ -178,14 +178,15 @@ def _trigger_get(p, me, pool_level, pq, pqh, pqn, bf, ist, fst, ht, hs, hp):
 @njit(cache=True)
 def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn, rq, rqh, rqn,
                wq, wqh, wqn, rpend, wpend, bus_free, pool_level, pq, pqh, pqn,
-               c_t, c_bank, c_f, c_i, base, arrival, finish, clog):
+               c_t, c_bank, c_f, c_i, base, done_f, done_i, clog):
     """Run until the source needs a chunk or slots, or until the end.
 
     Chunk columns (admission order): ``c_t`` time, ``c_bank``, ``c_f`` =
     (service, current, pre, pj), ``c_i`` = (is read, local request or -1,
     channel, row, physical line, uses bus, RESET rounds, SET rounds, cells,
     SET cells, RESET cells).  ``base`` is the global index of the chunk's
-    first request.
+    first request.  Completions go to ``done_f`` (arrival, finish) and
+    ``done_i`` (request, op) in completion order; the caller empties them.
     """
     nb = pi[P_NB]
     src = nb
@@ -199,8 +200,8 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
     burst, read_ns, hit_ns = pf[F_BURST], pf[F_READ], pf[F_HIT]
     n_entries = c_t.shape[0]
     while True:
-        if ist[CLOG_N] >= clog.shape[0]:
-            return FLUSH              # the caller applies the logged wear first
+        if ist[CLOG_N] >= clog.shape[0] or ist[DONE_N] >= done_f.shape[0]:
+            return FLUSH              # the caller takes the logs first (one entry per event at most)
         if ist[SRC_RUN] != 0:
             pid = src
         else:
@@ -240,7 +241,6 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
                         ist[SRC_K] = S_SLOT
                         ist[SRC_RUN] = 0
                         break
-                    arrival[base + c_i[pos, 1]] = now
                     ist[IN_FLIGHT] += 1
                     fst[SRC_T] = now
                     k = S_HAND
@@ -304,9 +304,8 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
         top = True
         if kind == K_DONE:
             s = bi[b, B_SLOT]
-            req = si[s, SI_REQ]
-            if req >= 0:
-                _complete(req, now, finish, ist, ht, hs, hp, src)
+            if si[s, SI_REQ] >= 0:
+                _complete(s, now, sf, si, done_f, done_i, ist, ht, hs, hp, src)
             _free(s, free, ist)
         elif kind == K_GOT:
             fst[POWER_WAIT] += now - bf[b, BF_T0]
@@ -329,9 +328,8 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
             if bi[b, B_AGAIN] != 0:
                 _q_push_front(wq, wqh, wqn, b, s)
             else:
-                req = si[s, SI_REQ]
-                if req >= 0:
-                    _complete(req, now, finish, ist, ht, hs, hp, src)
+                if si[s, SI_REQ] >= 0:
+                    _complete(s, now, sf, si, done_f, done_i, ist, ht, hs, hp, src)
                 _free(s, free, ist)
         if not top:
             continue
@@ -424,8 +422,13 @@ def _free(s, free, ist):
 
 
 @njit(cache=True)
-def _complete(req, now, finish, ist, ht, hs, hp, src):
-    finish[req] = now
+def _complete(s, now, sf, si, done_f, done_i, ist, ht, hs, hp, src):
+    n = ist[DONE_N]
+    done_f[n, 0] = sf[s, SF_T]          # admission time = arrival (closed loop: hand-over)
+    done_f[n, 1] = now
+    done_i[n, 0] = si[s, SI_REQ]
+    done_i[n, 1] = 0 if si[s, SI_READ] != 0 else 1
+    ist[DONE_N] = n + 1
     ist[IN_FLIGHT] -= 1
     if ist[SLOT_WAIT] != 0:
         ist[SLOT_WAIT] = 0

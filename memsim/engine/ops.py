@@ -131,6 +131,10 @@ def prepare_ops(eng, chunk: Chunk) -> OpColumns:
     tot.user_write_ns += float(service[~moves].sum())
     if eng.agent is not None and not eng.closed:
         eng.agent.note_writes(chunk.time_ns[w_idx[wb.after]] if w_idx.size else np.empty(0), wb.phys)
+        if eng.agent.plan.policy == "none" and chunk.time_ns.size:
+            # Nothing reads line ages during the run: take this chunk's
+            # writes now, so pending writes do not pile up over a long run.
+            eng.agent.catch_up(float(chunk.time_ns[-1]))
 
     w_req = np.where(moves, -1, w_idx[np.clip(wb.user, 0, None)] if w_idx.size else 0)
     w_pos = w_idx[wb.after] if w_idx.size else np.empty(0, np.int64)

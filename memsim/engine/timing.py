@@ -30,6 +30,7 @@ import simpy
 from memsim.engine.erase_agent import OUT_OF_PLACE, WAIT, EraseAgent
 from memsim.engine.ops import prepare_ops
 from memsim.engine.refresh_agent import URGENT, RefreshAgent
+from memsim.engine.stream import LatencyStream
 from memsim.policy.refresh import RefreshPlan
 from memsim.policy.write.bits import popcount_rows
 from memsim.policy.writepath import WritePath
@@ -81,6 +82,7 @@ class TimingTotals:
     preset_pj: float = 0.0
     preset_cells: int = 0
     hint_hits: int = 0               # user writes that found their line pre-programmed
+    stream: LatencyStream = field(default_factory=LatencyStream)   # latency and occupancy statistics
 
     @property
     def requests(self) -> int:
@@ -106,7 +108,7 @@ class _Wake(simpy.Event):
 class _Prepared:
     """One chunk, ready for simulated time: admission entries as tuples."""
 
-    __slots__ = ("arrival", "entries", "finish", "lat", "op", "users")
+    __slots__ = ("arrival", "base", "entries", "finish", "lat", "op", "users")
 
     def __init__(self, n: int) -> None:
         # Plain lists: the bank loop writes one element per request, and list
@@ -118,6 +120,7 @@ class _Prepared:
         self.op = np.zeros(n, np.int8)
         self.entries: list = []
         self.users = 0
+        self.base = 0           # global index of the chunk's first request
 
 
 class TimingEngine:
@@ -218,6 +221,7 @@ class TimingEngine:
         self.in_flight = 0
         self.source_done = False
         self.prepared: list[_Prepared] = []
+        self.done: list[int] = []       # requests in completion order
         self.refresh_running = 0
         if self.plan is not None:
             self.agent = RefreshAgent(self, self.plan, self.rng)
@@ -254,8 +258,11 @@ class TimingEngine:
             ev.at(max(0.0, at - self.env.now))
 
     def _chunks(self) -> Iterator[_Prepared]:
+        base = 0
         for chunk in self.source:
             prep = self._prepare(chunk)
+            prep.base = base
+            base += prep.op.size
             self.prepared.append(prep)
             yield prep
 
@@ -444,6 +451,7 @@ class TimingEngine:
                 done = now + dur
                 prep.finish[idx] = done
                 prep.lat[idx] = done - prep.arrival[idx]
+                self.done.append(prep.base + idx)
                 self.in_flight -= 1
                 if self.slot is not None:
                     ev, self.slot = self.slot, None
@@ -605,6 +613,7 @@ class TimingEngine:
             done_t = env.now
             prep.finish[idx] = done_t
             prep.lat[idx] = done_t - prep.arrival[idx]
+            self.done.append(prep.base + idx)
             self.in_flight -= 1
             if self.slot is not None:
                 ev, self.slot = self.slot, None
@@ -645,6 +654,8 @@ class TimingEngine:
             tot.finish_ns = np.concatenate([np.asarray(p.finish, float) for p in self.prepared])
             tot.arrival_ns = np.concatenate([np.asarray(p.arrival, float) for p in self.prepared])
         tot.simulated_ns = float(np.nanmax(tot.finish_ns)) if tot.finish_ns.size else 0.0
+        order = np.asarray(self.done, np.int64)
+        tot.stream.add(tot.op[order], tot.arrival_ns[order], tot.finish_ns[order])
         tot.bank_busy_ns = np.asarray(tot.bank_busy_ns, dtype=float)
         price_energy(tot, self.cell)
         if self.agent is not None:
