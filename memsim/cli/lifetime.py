@@ -20,9 +20,11 @@ def lifetime_cmd(config: str, sets: tuple[str, ...], write_rate: float | None, m
                  out: str | None) -> None:
     """Estimate how long the memory of CONFIG (TOML) lasts; print the summary."""
     from memsim.experiment.lifetime import lifetime
+    from memsim.experiment.progress import shown
     from memsim.report.wear_plot import save_wear_figure
 
-    result = lifetime(config, write_rate_gbps=write_rate, method=method, overrides=overrides(sets))
+    with shown():
+        result = lifetime(config, write_rate_gbps=write_rate, method=method, overrides=overrides(sets))
     run = result.config["run"]
     folder = Path(out) if out else Path(run["out_dir"]) / run["name"]
     result.save(folder)

@@ -14,9 +14,11 @@ from memsim.cli.common import SET_HELP, overrides, print_summary
 @click.option("--out", type=click.Path(file_okay=False), help="Results folder (default results/<name>).")
 def run(config: str, sets: tuple[str, ...], out: str | None) -> None:
     """Run one CONFIG (TOML) and print its summary."""
+    from memsim.experiment.progress import shown
     from memsim.experiment.run import simulate
 
-    result = simulate(config, overrides=overrides(sets))
+    with shown():
+        result = simulate(config, overrides=overrides(sets))
     folder = Path(out) if out else Path(result.config["run"]["out_dir"]) / result.config["run"]["name"]
     result.save(folder)
     print_summary(result.summary, f"run {result.config['run']['name']} "

@@ -15,6 +15,7 @@ from memsim.engine.refresh_agent import RefreshAgent
 from memsim.engine.timing import TimingEngine, TimingTotals
 from memsim.experiment.build import build_path, build_source, check_names, source_fields
 from memsim.experiment.lifetime import lifetime_fields
+from memsim.experiment.progress import track
 from memsim.metrics.result import RunResult
 from memsim.policy.refresh import plan_refresh
 from memsim.policy.writepath import WritePath
@@ -134,7 +135,9 @@ def simulate(config: str | Path | Mapping | RunConfig | None = None, **overrides
     path = build_path(cfg, rng)
     source = build_source(cfg, rng)
     plan = plan_refresh(cfg)
-    engine = make_engine(cfg, source, path, plan, np.random.default_rng([cfg.run.seed, 1]))
+    total = cfg.workload.requests if cfg.workload.pattern != "trace" else None
+    chunks = track(source, total, "req", f"run {cfg.run.name}")
+    engine = make_engine(cfg, chunks, path, plan, np.random.default_rng([cfg.run.seed, 1]))
     tot = engine.run()
     summary = summarize(cfg, tot, path)
     summary["engine"] = engine.name
