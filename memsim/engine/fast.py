@@ -14,7 +14,7 @@ import numpy as np
 
 from memsim.engine import kernel as K
 from memsim.engine.ops import OpColumns, prepare_ops
-from memsim.engine.refresh_agent import RefreshAgent
+from memsim.engine.refresh_agent import URGENT, RefreshAgent
 from memsim.engine.stream import LatencyStream
 from memsim.engine.timing import TimingEngine, TimingTotals, price_energy
 from memsim.policy.refresh import RefreshPlan
@@ -32,8 +32,8 @@ def unsupported(cfg, path: WritePath, plan: RefreshPlan | None) -> list[str]:
     w = cfg.workload
     if cfg.controller.hint_preset and (w.hint_lead_ns > 0 or w.pattern == "trace"):
         gaps.append("hint pre-programming with hints in the stream (controller.hint_preset)")
-    if plan is not None and plan.policy != "none":
-        gaps.append(f"refresh policy {plan.policy}")
+    if plan is not None and plan.policy == "scrub":
+        gaps.append("refresh policy scrub")
     return gaps
 
 
@@ -79,9 +79,12 @@ class FastEngine(TimingEngine):
         self.ist = np.zeros(K.N_IST, np.int64)
         self.fst = np.zeros(K.N_FST)
         # One pending event per process, plus at most one current return per bank.
-        self.ht = np.zeros(2 * nb + 2)
-        self.hs = np.zeros(2 * nb + 2, np.int64)
-        self.hp = np.zeros(2 * nb + 2, np.int64)
+        # One pending event per process (source, banks, refresh scans), plus
+        # at most one current return per bank.
+        n_events = 3 * nb + 2
+        self.ht = np.zeros(n_events)
+        self.hs = np.zeros(n_events, np.int64)
+        self.hp = np.zeros(n_events, np.int64)
         self.bi = np.zeros((nb, K.N_BI), np.int64)
         self.bi[:, K.B_ROW] = -1
         self.bf = np.zeros((nb, K.N_BF))
@@ -102,8 +105,22 @@ class FastEngine(TimingEngine):
         self.pq = np.zeros((max(n_pools, 1), nb + 1), np.int64)
         self.pqh, self.pqn = np.zeros(max(n_pools, 1), np.int64), np.zeros(max(n_pools, 1), np.int64)
         self.clog = np.zeros((4096, 2), np.int64)
-        # Process start order as in simpy: the source, then bank 0, 1, ...
-        for pid in [nb] + list(range(nb)):
+        self.fq = [_RefreshQueue() for _ in range(nb)]     # the refresh agent appends here
+        self.fqa = np.zeros((nb, 64), np.int64)             # the kernel's refresh queues
+        self.fqh, self.fqn = np.zeros(nb, np.int64), np.zeros(nb, np.int64)
+        self.hlog = np.zeros((4096, 2))
+        pi[K.P_SCAN_BASE] = nb + 1 + self.pool_level.size
+        pi[K.P_CLOSED_REFRESH] = self.closed_refresh
+        pi[K.P_URGENT] = URGENT
+        scans = self.agent is not None and self.plan.active and np.isfinite(self.plan.scan_ns)
+        pf[K.F_SCAN_NS] = self.plan.scan_ns if scans else 0.0
+        # Process start order as in simpy: the source, bank 0, 1, ..., then
+        # the refresh scans.
+        pids = [nb] + list(range(nb))
+        if scans:
+            self.ist[K.REFRESH_RUNNING] = nb
+            pids += [int(pi[K.P_SCAN_BASE]) + b for b in range(nb)]
+        for pid in pids:
             K._push(self.ht, self.hs, self.hp, self.ist, 0.0, pid)
         self.ist[K.SRC_RUN] = 0
         self.ist[K.SRC_K] = K.S_NEXT
@@ -177,9 +194,13 @@ class FastEngine(TimingEngine):
                 self.sf, self.si, self.free, self.ib, self.ibh, self.ibn, self.rq, self.rqh, self.rqn,
                 self.wq, self.wqh, self.wqn, self.rpend, self.wpend, self.bus_free, self.pool_level,
                 self.pq, self.pqh, self.pqn, cols[0], cols[1], cols[2], cols[3], base,
-                self.done_f, self.done_i, self.clog)
+                self.done_f, self.done_i, self.clog, self.fqa, self.fqh, self.fqn, self.hlog)
             self._flush_cancel_wear()
             self._flush_done()
+            self._flush_handovers()
+            if status == K.SCAN:
+                self._scan(int(ist[K.SCAN_B]))
+                continue
             if status == K.NEED_SLOTS:
                 self._grow_slots()
                 continue
@@ -210,6 +231,53 @@ class FastEngine(TimingEngine):
             self.arrival[i[:, 0]] = f[:, 0]     # closed loop: the time of hand-over
         self.ist[K.DONE_N] = 0
 
+    def _flush_handovers(self) -> None:
+        n = int(self.ist[K.HLOG_N])
+        if n:
+            # One at a time, as the reference hands them over: the agent
+            # sums failure probabilities per noted batch.
+            note = self.agent.note_writes
+            for t, p in zip(self.hlog[:n, 0].tolist(), self.hlog[:n, 1].astype(np.int64).tolist()):
+                note(np.array([t]), np.array([p]))
+            self.ist[K.HLOG_N] = 0
+
+    def _scan(self, b: int) -> None:
+        """A refresh scan of bank ``b`` is due (the reference's scan process)."""
+        ist, fst = self.ist, self.fst
+        if ist[K.SRC_DONE] and ist[K.IN_FLIGHT] == 0:
+            ist[K.REFRESH_RUNNING] -= 1
+            K.wake_all(self.amap.total_banks, self.bi, ist, fst, self.ht, self.hs, self.hp)
+            return
+        now = float(fst[K.NOW])
+        self.agent.scan_once(b, now)
+        K.push_event(self.ht, self.hs, self.hp, ist, now + self.plan.scan_ns, int(self.pi[K.P_SCAN_BASE]) + b)
+
+    def _wake(self, b: int, at: float) -> None:
+        """The refresh agent queued operations for bank ``b``: hand them over, wake it."""
+        items = self.fq[b].take()
+        if items:
+            ch, service, current, phys = (np.array(c) for c in zip(*((it[1], it[2], it[4], it[10])
+                                                                     for _, it in items)))
+            while int(self.ist[K.FREE_TOP]) < len(items):
+                self._grow_slots()
+            need = int(self.fqn[b]) + len(items)
+            if need > self.fqa.shape[1]:
+                self._grow_refresh_queues(need)
+            K.queue_refreshes(b, ch.astype(np.int64), service.astype(float), current.astype(float),
+                              phys.astype(np.int64), self.sf, self.si, self.free, self.ist,
+                              self.fqa, self.fqh, self.fqn, float(self.fst[K.NOW]))
+        K.wake(b, at, self.bi, self.ist, self.fst, self.ht, self.hs, self.hp)
+
+    def _grow_refresh_queues(self, need: int) -> None:
+        cap = self.fqa.shape[1]
+        new_cap = max(2 * cap, need)
+        new = np.zeros((self.fqa.shape[0], new_cap), np.int64)
+        for b in range(self.fqa.shape[0]):
+            k = int(self.fqn[b])
+            new[b, :k] = self.fqa[b, (self.fqh[b] + np.arange(k)) % cap]
+        self.fqa = new
+        self.fqh[:] = 0
+
     def cancel_wear(self, phys: np.ndarray, wasted: np.ndarray) -> None:
         """Cells programmed by aborted writes (the reference counts them one by one)."""
         np.add.at(self.path.line_cells, phys, wasted)
@@ -239,6 +307,7 @@ class FastEngine(TimingEngine):
         status = self._call(empty, 0)
         if status != K.FINISHED:
             raise RuntimeError(f"fast engine: unexpected kernel status {status}")
+        self._flush_handovers()
         return self._finish_fast(nb)
 
     def _finish_fast(self, nb: int) -> TimingTotals:
@@ -252,6 +321,7 @@ class FastEngine(TimingEngine):
         tot.simulated_ns = self.max_finish
         tot.bank_busy_ns = self.bf[:, K.BF_BUSY].copy()
         tot.power_wait_ns = float(fst[K.POWER_WAIT])
+        tot.refresh_busy_ns = float(fst[K.REFRESH_BUSY])
         tot.cancellations = int(ist[K.CANCELS])
         tot.cancelled_pj = float(fst[K.CANC_PJ])
         tot.cancelled_cells = int(ist[K.CANC_CELLS])
@@ -266,6 +336,23 @@ class FastEngine(TimingEngine):
             self.agent.finish(tot.simulated_ns)
             tot.refresh_pj = self.agent.energy_pj
         return tot
+
+
+class _RefreshQueue:
+    """Where the refresh agent appends operations; the engine moves them into the kernel."""
+
+    def __init__(self) -> None:
+        self.items: list = []
+
+    def append(self, item) -> None:
+        self.items.append(item)
+
+    def take(self) -> list:
+        items, self.items = self.items, []
+        return items
+
+    def __len__(self) -> int:
+        return len(self.items)
 
 
 def make_engine(cfg, source: Iterable[Chunk], path: WritePath, refresh: RefreshPlan | None = None,

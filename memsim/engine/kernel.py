@@ -23,20 +23,22 @@ from numba import njit
 SEQ, HSIZE, SRC_K, SRC_POS, SRC_RUN, IN_FLIGHT, SRC_DONE, SLOT_WAIT, FREE_TOP = range(9)
 CANCELS, PAUSES, CANC_CELLS, CLOG_N, USER_SET, USER_RESET, SRC_B, ERROR = range(9, 17)
 SET_CELLS, RESET_CELLS, READ_BITS, DONE_N = range(17, 21)
-N_IST = 21
+REFRESH_RUNNING, SCAN_B, SRC_LOGGED, HLOG_N = range(21, 25)
+N_IST = 25
 # ---- float state (fst)
-NOW, SRC_T, POWER_WAIT, CANC_PJ = range(4)
-N_FST = 4
+NOW, SRC_T, POWER_WAIT, CANC_PJ, REFRESH_BUSY = range(5)
+N_FST = 5
 # ---- integer parameters (pi)
 P_NB, P_RCAP, P_WCAP, P_HIGH, P_LOW, P_IDLEW, P_CLOSED, P_LIMIT, P_EXT, P_CANCEL, P_PAUSE, \
-    P_NPOOLS, P_CAS, P_PER_RESET, P_PER_SET, P_EXTRA_BITS = range(16)
-N_PI = 16
+    P_NPOOLS, P_CAS, P_PER_RESET, P_PER_SET, P_EXTRA_BITS, P_SCAN_BASE, P_CLOSED_REFRESH, P_URGENT = range(19)
+N_PI = 19
 # ---- float parameters (pf)
-F_BURST, F_READ, F_HIT, F_CANCEL_BEFORE, F_RESET_NS, F_SET_NS, F_POOL_CAP, F_RESET_UA, F_SET_UA = range(9)
-N_PF = 9
+F_BURST, F_READ, F_HIT, F_CANCEL_BEFORE, F_RESET_NS, F_SET_NS, F_POOL_CAP, F_RESET_UA, F_SET_UA, \
+    F_SCAN_NS = range(10)
+N_PF = 10
 # ---- per-bank integers (bi)
-B_KIND, B_SLOT, B_DRAIN, B_ROW, B_IDLE, B_SPACE, B_WDRAIN, B_AGAIN, B_DONE = range(9)
-N_BI = 9
+B_KIND, B_SLOT, B_DRAIN, B_ROW, B_IDLE, B_SPACE, B_WDRAIN, B_AGAIN, B_DONE, B_STREAK, B_SCANNED = range(11)
+N_BI = 11
 # ---- per-bank floats (bf)
 BF_BUSY, BF_T0, BF_NEED = range(3)
 N_BF = 3
@@ -50,7 +52,8 @@ K_RUN, K_DONE, K_GOT, K_WDONE = range(4)
 # ---- resume points of the source
 S_NEXT, S_SLOT, S_HAND, S_AFTER_T, S_SPACECHK, S_SPACE = range(6)
 # ---- kernel status
-BLOCKED, NEED_CHUNK, NEED_SLOTS, FINISHED, FAILED, FLUSH = range(6)
+BLOCKED, NEED_CHUNK, NEED_SLOTS, FINISHED, FAILED, FLUSH, SCAN = range(7)
+REFRESH = -2          # request field of a refresh operation (as in the reference)
 
 
 @njit(cache=True)
@@ -178,7 +181,7 @@ def _trigger_get(p, me, pool_level, pq, pqh, pqn, bf, ist, fst, ht, hs, hp):
 @njit(cache=True)
 def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn, rq, rqh, rqn,
                wq, wqh, wqn, rpend, wpend, bus_free, pool_level, pq, pqh, pqn,
-               c_t, c_bank, c_f, c_i, base, done_f, done_i, clog):
+               c_t, c_bank, c_f, c_i, base, done_f, done_i, clog, fq, fqh, fqn, hlog):
     """Run until the source needs a chunk or slots, or until the end.
 
     Chunk columns (admission order): ``c_t`` time, ``c_bank``, ``c_f`` =
@@ -210,6 +213,15 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
             t, pid = _pop(ht, hs, hp, ist)
             fst[NOW] = t
         now = fst[NOW]
+        if pid >= pi[P_SCAN_BASE]:
+            # A refresh scan of bank pid - base: its first step only waits.
+            sb = pid - pi[P_SCAN_BASE]
+            if bi[sb, B_SCANNED] == 0:
+                bi[sb, B_SCANNED] = 1
+                _push(ht, hs, hp, ist, now + pf[F_SCAN_NS], pid)
+                continue
+            ist[SCAN_B] = sb
+            return SCAN
         if pid > src:
             # A returned current is processed: waiting writes may start.
             _trigger_get(pid - src - 1, -1, pool_level, pq, pqh, pqn, bf, ist, fst, ht, hs, hp)
@@ -252,6 +264,16 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
                     else:
                         qn, cap, pend = wqn, wcap, wpend
                     if k == S_HAND:
+                        if pi[P_CLOSED_REFRESH] != 0 and not is_read and ist[SRC_LOGGED] == 0:
+                            # The refresh agent learns the write at hand-over.
+                            n = ist[HLOG_N]
+                            if n >= hlog.shape[0]:
+                                ist[SRC_K] = k
+                                return FLUSH
+                            hlog[n, 0] = fst[SRC_T]
+                            hlog[n, 1] = c_i[pos, SI_PHYS]
+                            ist[HLOG_N] = n + 1
+                            ist[SRC_LOGGED] = 1
                         if qn[b] + pend[b] < cap:
                             if ist[FREE_TOP] == 0:
                                 ist[SRC_K] = k
@@ -263,6 +285,7 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
                             if bi[b, B_IDLE] != 0:
                                 _wake(b, t, bi, ist, fst, ht, hs, hp)
                             ist[SRC_POS] = pos + 1
+                            ist[SRC_LOGGED] = 0
                             k = S_NEXT
                             continue
                         # The queue may be full when this request arrives: go there.
@@ -291,6 +314,7 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
                         _q_push(wq, wqh, wqn, b, s)
                     _wake(b, now, bi, ist, fst, ht, hs, hp)
                     ist[SRC_POS] = pos + 1
+                    ist[SRC_LOGGED] = 0
                     k = S_NEXT
                 elif k == S_AFTER_T or k == S_SPACE:
                     b = c_bank[pos]
@@ -340,7 +364,20 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
         if bi[b, B_DRAIN] == 0 and wqn[b] >= high:
             bi[b, B_DRAIN] = 1
         draining = bi[b, B_DRAIN] != 0
-        if draining or (wqn[b] > 0 and rqn[b] == 0
+        if fqn[b] > 0 and not draining and (rqn[b] == 0 or (fqn[b] >= pi[P_URGENT]
+                                                            and bi[b, B_STREAK] < pi[P_URGENT])):
+            # Refresh when no read waits, or when refreshes pile up; at
+            # most URGENT of them in a row while reads wait.
+            s = _q_pop(fq, fqh, fqn, b)
+            bi[b, B_SLOT] = s
+            bi[b, B_STREAK] = bi[b, B_STREAK] + 1 if rqn[b] > 0 else 0
+            if extended:
+                _write_start(b, s, False, now, pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si,
+                             ib, ibh, ibn, rqn, bus_free, pool_level, pq, pqh, pqn, clog)
+                continue
+            dur = sf[s, SF_SERVICE]
+            fst[REFRESH_BUSY] += dur
+        elif draining or (wqn[b] > 0 and rqn[b] == 0
                         and (idle_writes or ist[SLOT_WAIT] != 0 or (ist[SRC_DONE] != 0 and ibn[b] == 0))):
             s = _q_pop(wq, wqh, wqn, b)
             bi[b, B_SLOT] = s
@@ -361,6 +398,7 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
         elif rqn[b] > 0:
             s = _q_pop(rq, rqh, rqn, b)
             bi[b, B_SLOT] = s
+            bi[b, B_STREAK] = 0
             row = si[s, SI_ROW]
             ch = si[s, SI_CH]
             start = now + (hit_ns if (row >= 0 and row == bi[b, B_ROW]) else read_ns)
@@ -376,7 +414,7 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
             _push(ht, hs, hp, ist, now + (sf[ib[b, ibh[b]], SF_T] - now), b)
             continue
         else:
-            if ist[SRC_DONE] != 0 and wqn[b] == 0:
+            if ist[SRC_DONE] != 0 and wqn[b] == 0 and fqn[b] == 0 and ist[REFRESH_RUNNING] == 0:
                 bi[b, B_DONE] = 1
                 continue
             bi[b, B_IDLE] = 1
@@ -439,7 +477,7 @@ def _complete(s, now, sf, si, done_f, done_i, ist, ht, hs, hp, src):
 def _write_start(b, s, draining, now, pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, ib, ibh, ibn, rqn,
                  bus_free, pool_level, pq, pqh, pqn, clog):
     """Begin one write or move: cost decided at service, then wait for current."""
-    if pi[P_CAS] != 0:
+    if pi[P_CAS] != 0 and si[s, SI_REQ] != REFRESH:
         # Cost decided at service (hint mode without a pre-programmed line:
         # the in-place form); counted in service order like the reference.
         n_set, n_reset = si[s, SI_NSET], si[s, SI_NRESET]
@@ -549,7 +587,47 @@ def _write_go(b, now, pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, ib, ibh, ibn
                     sf[s, SF_PJ] = 0.0
                     si[s, SI_CELLS] = 0
                     again = 1
+    if idx == REFRESH:
+        fst[REFRESH_BUSY] += dur
     bi[b, B_AGAIN] = again
     bf[b, BF_BUSY] += (now - bf[b, BF_T0]) + dur
     bi[b, B_KIND] = K_WDONE
     _push(ht, hs, hp, ist, now + dur, b)
+
+
+@njit(cache=True)
+def wake(b, at, bi, ist, fst, ht, hs, hp):
+    """Wake bank ``b`` (for the refresh agent)."""
+    _wake(b, at, bi, ist, fst, ht, hs, hp)
+
+
+@njit(cache=True)
+def wake_all(nb, bi, ist, fst, ht, hs, hp):
+    for b in range(nb):
+        _wake(b, fst[NOW], bi, ist, fst, ht, hs, hp)
+
+
+@njit(cache=True)
+def push_event(ht, hs, hp, ist, t, pid):
+    _push(ht, hs, hp, ist, t, pid)
+
+
+@njit(cache=True)
+def queue_refreshes(b, ch, service, current, phys, sf, si, free, ist, fq, fqh, fqn, now):
+    """Append refresh operations to bank ``b``'s refresh queue (slots must be free)."""
+    for k in range(ch.size):
+        top = ist[FREE_TOP] - 1
+        ist[FREE_TOP] = top
+        s = free[top]
+        sf[s, SF_T] = now
+        sf[s, SF_SERVICE] = service[k]
+        sf[s, SF_CUR] = current[k]
+        sf[s, SF_PRE] = 0.0
+        sf[s, SF_PJ] = 0.0
+        for j in range(N_SI):
+            si[s, j] = 0
+        si[s, SI_REQ] = REFRESH
+        si[s, SI_CH] = ch[k]
+        si[s, SI_ROW] = -1
+        si[s, SI_PHYS] = phys[k]
+        _q_push(fq, fqh, fqn, b, s)
