@@ -32,9 +32,10 @@ def lifetime_cmd(config: str, sets: tuple[str, ...], write_rate: float | None, m
                  out: str | None, replace: bool, full: bool) -> None:
     """Estimate how long the memory of CONFIG (TOML) lasts; print the summary."""
     from memsim.experiment.lifetime import lifetime
+    from memsim.experiment.progress import shown
     from memsim.report.wear_plot import save_wear_figure
 
-    with naming(config, sets):
+    with naming(config, sets), shown():
         cfg, claim = prepare_output(config, sets, out, replace, "lifetime", write_rate_gbps=write_rate,
                                     method=method)
         result = lifetime(cfg, write_rate_gbps=write_rate, method=method)

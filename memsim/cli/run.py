@@ -24,9 +24,10 @@ from memsim.cli.common import (
 @click.option("--full", is_flag=True, help=FULL_HELP)
 def run(config: str, sets: tuple[str, ...], out: str | None, replace: bool, full: bool) -> None:
     """Run one CONFIG (TOML) and print its summary."""
+    from memsim.experiment.progress import shown
     from memsim.experiment.run import simulate
 
-    with naming(config, sets):
+    with naming(config, sets), shown():
         cfg, claim = prepare_output(config, sets, out, replace, "run")
         result = simulate(cfg)
     saved, err = save_results(claim, result.save, cfg.run.name)

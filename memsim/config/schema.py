@@ -174,6 +174,11 @@ class RunSection(Section):
     out_dir: str = Field("results", description="Folder that receives the results folder.")
     chunk_requests: int = Field(65536, ge=1024, le=1 << 22,
                                 description="Requests generated per chunk (memory grows with it).")
+    engine: Literal["fast", "reference"] = Field(
+        "fast", description="Timing engine: fast (compiled) or reference (simpy); a feature the fast "
+                            "engine lacks runs on the reference (summary key engine).")
+    keep_requests: bool = Field(False, description="Keep per-request arrival and finish times in memory "
+                                                   "(the summary never needs them).")
 
 
 class CellSection(Section):

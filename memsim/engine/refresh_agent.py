@@ -115,23 +115,27 @@ class RefreshAgent:
         """Simpy process: periodic or drift-triggered refresh of bank ``b``."""
         eng, plan = self.engine, self.plan
         env = eng.env
-        lines = self.lines_by_bank[b]
         while True:
             yield env.timeout(plan.scan_ns)
             if eng.source_done and eng.in_flight == 0:
                 break
-            now = env.now
-            self.catch_up(now)
-            if plan.policy == "drift":
-                due = lines[self.last[lines] + plan.threshold_ns <= now]
-            else:
-                due = lines[self.next_due[lines] <= now]
-                self.next_due[due] += plan.threshold_ns
-            if due.size:
-                self._queue_refresh(b, due, now)
+            self.scan_once(b, env.now)
         eng.refresh_running -= 1
         for bank in range(len(eng.idle)):
             eng._wake(bank, env.now)
+
+    def scan_once(self, b: int, now: float) -> None:
+        """One scan of bank ``b`` at ``now``: queue a refresh for every line due."""
+        plan = self.plan
+        lines = self.lines_by_bank[b]
+        self.catch_up(now)
+        if plan.policy == "drift":
+            due = lines[self.last[lines] + plan.threshold_ns <= now]
+        else:
+            due = lines[self.next_due[lines] <= now]
+            self.next_due[due] += plan.threshold_ns
+        if due.size:
+            self._queue_refresh(b, due, now)
 
     def on_read(self, b: int, phys: int, now: float) -> None:
         """Scrub-on-read: rewrite the line when the read sees too many errors."""

@@ -28,14 +28,15 @@ import numpy as np
 import simpy
 
 from memsim.engine.erase_agent import OUT_OF_PLACE, WAIT, EraseAgent
+from memsim.engine.ops import prepare_ops
 from memsim.engine.refresh_agent import URGENT, RefreshAgent
+from memsim.engine.stream import LatencyStream
 from memsim.policy.refresh import RefreshPlan
 from memsim.policy.write.bits import popcount_rows
 from memsim.policy.writepath import WritePath
 from memsim.tech.array import AddressMap
 from memsim.tech.cell import CellTech
-from memsim.workload.chunk import HINT, READ, Chunk
-
+from memsim.workload.chunk import Chunk
 
 PRESET = -3        # queue-item index marking a hint's pre-programming
 
@@ -54,9 +55,14 @@ class TimingTotals:
     move_writes: int = 0
     meta_writes: int = 0
     hints: int = 0
-    read_pj: float = 0.0
-    set_pj: float = 0.0
+    read_pj: float = 0.0             # read_bits x read energy per bit (set at the end)
+    set_pj: float = 0.0              # set_cells x SET energy per cell (set at the end)
     reset_pj: float = 0.0
+    # Energy is counted in cells and bits and priced once at the end, so the
+    # sum does not depend on whether it was counted per chunk or per write.
+    read_bits: int = 0               # bits read: reads, pre-reads, move source reads
+    set_cells: int = 0               # SET pulses of every write and move (SLC)
+    reset_cells: int = 0
     mlc_pj: float = 0.0              # program-and-verify energy of multi-level cells
     refresh_pj: float = 0.0          # refresh reads and reprogramming
     erase_pj: float = 0.0            # block erase-ahead: cleaner moves and bulk initialization
@@ -76,10 +82,18 @@ class TimingTotals:
     preset_pj: float = 0.0
     preset_cells: int = 0
     hint_hits: int = 0               # user writes that found their line pre-programmed
+    stream: LatencyStream = field(default_factory=LatencyStream)   # latency and occupancy statistics
 
     @property
     def requests(self) -> int:
         return self.reads + self.writes
+
+
+def price_energy(tot: TimingTotals, cell: CellTech) -> None:
+    """Energy of the counted bits and cells (once, at the end of a run)."""
+    tot.read_pj = tot.read_bits * cell.read_pj
+    tot.set_pj = tot.set_cells * cell.set_pj
+    tot.reset_pj = tot.reset_cells * cell.reset_pj
 
 
 class _Wake(simpy.Event):
@@ -94,7 +108,7 @@ class _Wake(simpy.Event):
 class _Prepared:
     """One chunk, ready for simulated time: admission entries as tuples."""
 
-    __slots__ = ("arrival", "entries", "finish", "lat", "op", "users")
+    __slots__ = ("arrival", "base", "entries", "finish", "lat", "op", "users")
 
     def __init__(self, n: int) -> None:
         # Plain lists: the bank loop writes one element per request, and list
@@ -106,6 +120,7 @@ class _Prepared:
         self.op = np.zeros(n, np.int8)
         self.entries: list = []
         self.users = 0
+        self.base = 0           # global index of the chunk's first request
 
 
 class TimingEngine:
@@ -120,6 +135,8 @@ class TimingEngine:
     path:
         The write path (leveler, write scheme, stored content, wear).
     """
+
+    name = "reference"
 
     def __init__(self, cfg, source: Iterable[Chunk], path: WritePath,
                  refresh: RefreshPlan | None = None, rng: np.random.Generator | None = None) -> None:
@@ -153,113 +170,37 @@ class TimingEngine:
 
     # ------------------------------------------------------------ preparation
     def _prepare(self, chunk: Chunk) -> _Prepared:
-        """Vectorized work for a chunk: remap, bit counts, service times, energy."""
-        tot, cell = self.totals, self.cell
-        keep = chunk.op != HINT
-        tot.hints += int((~keep).sum())
-        if not keep.all():
-            if self.hint_mode:
-                self._queue_hints(chunk.take(~keep))
-            chunk = chunk.take(keep)
-        n = len(chunk)
+        """Op columns of a chunk (see :mod:`memsim.engine.ops`) as admission entries."""
+        ops = prepare_ops(self, chunk)
+        n = ops.op.size
         prep = _Prepared(n)
-        prep.op[:] = chunk.op
-        prep.arrival = chunk.time_ns.tolist()
-        is_read = chunk.op == READ
-        w_idx = np.flatnonzero(~is_read)
-        tot.reads += int(is_read.sum())
-        tot.writes += int(w_idx.size)
-
-        # Reads see the map as it stands before this chunk's writes.
-        r_idx = np.flatnonzero(is_read)
-        r_phys = self.path.leveler.lookup(chunk.line[r_idx])
-        r_ch, r_bank, r_row = self.amap.locate(r_phys)
-        tot.read_pj += r_idx.size * self.line_bits * cell.read_pj
-
-        wb = self.path.apply(chunk.line[w_idx], None if chunk.data is None else chunk.data[w_idx])
-        w_ch, w_bank, _ = self.amap.locate(wb.phys)
-        moves = wb.user < 0
-        budget = self.round_budget_ua
-        if wb.program_ns is not None:             # multi-level cells: program-and-verify
-            program = wb.program_ns
-            pj = wb.program_pj
-            tot.mlc_pj += float(pj.sum())
-            cells = wb.n_set + wb.n_reset
-            per_round = max(1, int(budget // cell.reset_ua))
-            current = np.minimum(cells, per_round) * cell.reset_ua
-            rr = sr = np.zeros(cells.size, np.int64)           # no pause points inside
-        else:
-            program = self.cell.program_ns(wb.n_set, wb.n_reset, budget)
-            pj = cell.program_pj(wb.n_set, wb.n_reset)
-            if not self.cost_at_service:  # block erase, hints: counted when the bank decides
-                tot.set_pj += float(wb.n_set.sum()) * cell.set_pj
-                tot.reset_pj += float(wb.n_reset.sum()) * cell.reset_pj
-            cells = wb.n_set + wb.n_reset
-            per_reset, per_set = cell.cells_per_round(budget)
-            rr, sr = -(-wb.n_reset // per_reset), -(-wb.n_set // per_set)
-            # A write holds the peak current of its two phases while it programs.
-            current = np.maximum(np.minimum(wb.n_reset, per_reset) * cell.reset_ua,
-                                 np.minimum(wb.n_set, per_set) * cell.set_ua)
-        pre_read = self.path.scheme.pre_read
-        # A move reads its source line, then programs the destination.
-        pre = np.where(moves | pre_read, cell.read_ns, 0.0)
-        service = program + pre
-        extra_bits = self.line_bits + self.path.scheme.flag_cells
-        # Pre-reads of user writes: known now, unless the bank decides at
-        # service time (block erase, hints), where a write may skip it.
-        user_pre = int((~moves).sum()) if pre_read and not self.cost_at_service else 0
-        tot.read_pj += (int(moves.sum()) + user_pre) * extra_bits * cell.read_pj
-        if not self.cost_at_service:
-            tot.user_set_cells += int(wb.n_set[~moves].sum())
-            tot.user_reset_cells += int(wb.n_reset[~moves].sum())
-        tot.move_cells += int(wb.n_set[moves].sum() + wb.n_reset[moves].sum())
-        tot.move_writes += int(moves.sum())
-        tot.meta_writes += wb.meta_writes
-        tot.user_write_ns += float(service[~moves].sum())
-        if self.agent is not None and not self.closed:
-            self.agent.note_writes(chunk.time_ns[w_idx[wb.after]] if w_idx.size else np.empty(0), wb.phys)
-
+        prep.op[:] = ops.op
+        prep.arrival = ops.arrival.tolist()
         # Admission entries in arrival order: (time, is_read, bank, item).
         # Read item: (local index, channel, row, physical line).  Write item:
         # local index (-1 for a move), channel, service ns, uses bus, current
         # uA, pre-read ns, RESET rounds, SET rounds, programming pJ, cells,
         # physical line.
-        # A write's moves follow it (stable order by position in the chunk).
-        t = chunk.time_ns
-        w_req = np.where(moves, -1, w_idx[np.clip(wb.user, 0, None)] if w_idx.size else 0)
-        w_pos = w_idx[wb.after] if w_idx.size else np.empty(0, np.int64)
-        pos = np.concatenate([r_idx, w_pos])
-        order = np.argsort(pos, kind="stable")
-        nr = r_idx.size
-        w_cols = [w_req.tolist(), w_ch.tolist(), service.tolist(), (~moves).tolist(),
-                  current.tolist(), pre.tolist(), rr.tolist(), sr.tolist(), pj.tolist(),
-                  cells.tolist(), wb.phys.tolist()]
-        if self.out_of_place:
-            # Block erase: the cost of the out-of-place write (only the pulse
-            # opposite to the initial state, no pre-read) and of the in-place
-            # fallback (data-comparison counts); the bank picks at service.
-            o_set, o_reset = self.erase.oop_cost_from_ones(wb.ones)
-            o_ns = cell.program_ns(o_set, o_reset, budget)
+        order = ops.order
+        nr = ops.n_reads
+        w_cols = [ops.w_req.tolist(), ops.w_ch.tolist(), ops.service.tolist(), ops.uses_bus.tolist(),
+                  ops.current.tolist(), ops.pre.tolist(), ops.rr.tolist(), ops.sr.tolist(),
+                  ops.pj.tolist(), ops.cells.tolist(), ops.w_phys.tolist()]
+        if ops.alt is not None:
+            o_ns, o_set, o_reset = ops.alt
             w_cols.append(list(zip(o_ns.tolist(), o_set.tolist(), o_reset.tolist(),
-                                   wb.n_set.tolist(), wb.n_reset.tolist())))
-        elif self.hint_mode:
-            # A write to a line pre-programmed to all-SET from a hint needs
-            # only RESET pulses for its 0 bits and no pre-read.
-            o_reset = self.line_bits - wb.ones
-            o_ns = cell.program_ns(np.zeros_like(o_reset), o_reset, budget)
-            w_cols.append(list(zip(o_ns.tolist(), [0] * o_ns.size, o_reset.tolist(),
-                                   wb.n_set.tolist(), wb.n_reset.tolist())))
+                                   ops.n_set.tolist(), ops.n_reset.tolist())))
         if not self.extended:
             w_cols = w_cols[:4]        # the plain bank loop needs only these
-        items = (list(zip(r_idx.tolist(), r_ch.tolist(), r_row.tolist(), r_phys.tolist()))
+        items = (list(zip(ops.r_idx.tolist(), ops.r_ch.tolist(), ops.r_row.tolist(), ops.r_phys.tolist()))
                  + list(zip(*w_cols)))
         # Entries carry (prep, item) so the source hands them to a bank's
         # inbox as they are (no tuple per request on the hot path).
         paired = list(zip(repeat(prep), items))
         ordered = itemgetter(*order.tolist())(paired) if len(paired) > 1 else tuple(paired)
-        prep.entries = list(zip(t[pos[order]].tolist(), (order < nr).tolist(),
-                                np.concatenate([r_bank, w_bank])[order].tolist(), ordered))
-        prep.users = nr + int((~moves).sum())
+        prep.entries = list(zip(ops.t.tolist(), (order < nr).tolist(),
+                                np.concatenate([ops.r_bank, ops.w_bank])[order].tolist(), ordered))
+        prep.users = ops.users
         return prep
 
     # ------------------------------------------------------------ simulation
@@ -280,6 +221,7 @@ class TimingEngine:
         self.in_flight = 0
         self.source_done = False
         self.prepared: list[_Prepared] = []
+        self.done: list[int] = []       # requests in completion order
         self.refresh_running = 0
         if self.plan is not None:
             self.agent = RefreshAgent(self, self.plan, self.rng)
@@ -316,8 +258,11 @@ class TimingEngine:
             ev.at(max(0.0, at - self.env.now))
 
     def _chunks(self) -> Iterator[_Prepared]:
+        base = 0
         for chunk in self.source:
             prep = self._prepare(chunk)
+            prep.base = base
+            base += prep.op.size
             self.prepared.append(prep)
             yield prep
 
@@ -506,6 +451,7 @@ class TimingEngine:
                 done = now + dur
                 prep.finish[idx] = done
                 prep.lat[idx] = done - prep.arrival[idx]
+                self.done.append(prep.base + idx)
                 self.in_flight -= 1
                 if self.slot is not None:
                     ev, self.slot = self.slot, None
@@ -587,21 +533,25 @@ class TimingEngine:
                 service, pre, n_set, n_reset = o_ns, 0.0, o_set, o_reset
             else:
                 n_set, n_reset = i_set, i_reset
-            tot.set_pj += n_set * cell.set_pj
-            tot.reset_pj += n_reset * cell.reset_pj
+            tot.set_cells += n_set
+            tot.reset_cells += n_reset
             tot.user_set_cells += n_set
             tot.user_reset_cells += n_reset
             per_reset, per_set = cell.cells_per_round(self.round_budget_ua)
             cur = max(min(n_reset, per_reset) * cell.reset_ua, min(n_set, per_set) * cell.set_ua)
             rr = sr = 0            # no cancellation or pausing of these writes
         if pre > 0 and idx >= 0 and self.cost_at_service:
-            tot.read_pj += (self.line_bits + self.path.scheme.flag_cells) * cell.read_pj
+            tot.read_bits += self.line_bits + self.path.scheme.flag_cells
         t0 = env.now
         pool = self.pools[ch if len(self.pools) > 1 else 0] if self.pools else None
         need = min(cur, pool.capacity) if pool is not None else 0.0
         if need > 0:
-            yield pool.get(need)
-            tot.power_wait_ns += env.now - t0
+            # Wait only when the current is not free now: a budget that never
+            # binds must not move the write behind other events of this time.
+            got = pool.get(need)
+            if not got.triggered:
+                yield got
+                tot.power_wait_ns += env.now - t0
         now = env.now
         lead = 0.0
         if uses_bus:
@@ -611,13 +561,16 @@ class TimingEngine:
             lead = bus_free[ch] - now
         prog_start = now + lead + pre
         end = now + lead + service
-        stop, again = end, None
+        # The same sum as the plain bank loop (bus lead + service), so that
+        # switching on a feature that does not act changes no number.
+        dur, again = lead + service, None
         if idx >= 0 and not draining and (c.write_cancel or c.write_pause) and len(item) <= 11:
             t_r = self._next_read(b, now, end)
             if t_r is not None:
                 span = end - prog_start
                 if c.write_cancel and t_r < prog_start + c.cancel_before * span:
                     stop = max(t_r, now)      # a read that came while we waited for current
+                    dur = stop - now
                     done = max(0.0, stop - prog_start) / span if span > 0 else 0.0
                     tot.cancellations += 1
                     tot.cancelled_pj += done * pj
@@ -635,17 +588,16 @@ class TimingEngine:
                         j = -(-(e - rr * rns) // sns)
                         boundary, left = rr * rns + j * sns, (0, sr - int(j))
                     if left[0] + left[1] > 0:
-                        stop = prog_start + boundary
+                        dur = prog_start + boundary - now
                         tot.pauses += 1
                         rest = left[0] * rns + left[1] * sns
                         again = (idx, ch, rest, False, cur, 0.0, left[0], left[1], 0.0, 0, phys)
-        dur = stop - now
-        self.totals.bank_busy_ns[b] += stop - t0
+        self.totals.bank_busy_ns[b] += (now - t0) + dur
         if refresh:
             tot.refresh_busy_ns += dur
         yield env.timeout(dur)
         if need > 0:
-            yield pool.put(need)
+            pool.put(need)      # never waits: only what was taken comes back
         if again is not None:
             self.wq[b].appendleft((prep, again))
         elif idx == PRESET:
@@ -661,6 +613,7 @@ class TimingEngine:
             done_t = env.now
             prep.finish[idx] = done_t
             prep.lat[idx] = done_t - prep.arrival[idx]
+            self.done.append(prep.base + idx)
             self.in_flight -= 1
             if self.slot is not None:
                 ev, self.slot = self.slot, None
@@ -701,7 +654,10 @@ class TimingEngine:
             tot.finish_ns = np.concatenate([np.asarray(p.finish, float) for p in self.prepared])
             tot.arrival_ns = np.concatenate([np.asarray(p.arrival, float) for p in self.prepared])
         tot.simulated_ns = float(np.nanmax(tot.finish_ns)) if tot.finish_ns.size else 0.0
+        order = np.asarray(self.done, np.int64)
+        tot.stream.add(tot.op[order], tot.arrival_ns[order], tot.finish_ns[order])
         tot.bank_busy_ns = np.asarray(tot.bank_busy_ns, dtype=float)
+        price_energy(tot, self.cell)
         if self.agent is not None:
             self.agent.finish(tot.simulated_ns)
             tot.refresh_pj = self.agent.energy_pj

@@ -65,6 +65,7 @@ from memsim.config import RunConfig
 from memsim.engine.wear import WearResult, rotate_profile, run_wear
 from memsim.errors import ConfigError
 from memsim.experiment.build import build_leveler, build_path
+from memsim.experiment.progress import track
 from memsim.metrics.lifetime import (
     Lifetime,
     ideal_lifetime_writes,
@@ -697,7 +698,7 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
 
     sample = sample_profile(cfg, np.random.default_rng(seeds["profile"]), min(window, _PROFILE_WRITES))
     lv = new_leveler()
-    wear = run_wear(stream(), lv, max_user_writes=window)
+    wear = run_wear(track(stream(), window, "writes", "wear window"), lv, max_user_writes=window)
     profile = rotated_profile(path_profile(sample), sample.line_bits, lv)
     law = DeathLaw(_endurance(cfg), profile_cells(sample), lt.ecp_entries, profile)
     dd = device_deaths(law, np.random.default_rng(seeds["endurance"]), wear.line_wear / wear.user_writes,
@@ -714,7 +715,10 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
         s.update(_years_fields("lifetime", a, *args))
     if method in ("both", "run_to_failure"):
         cl, reachable = _capacity_share(dd)
-        b = lifetime_to_failure(stream, new_leveler(), dd.death, endurance_scale=lt.endurance_scale,
+        def replay_stream() -> Iterator[np.ndarray]:
+            return track(stream(), None, "writes", "replay to failure")
+
+        b = lifetime_to_failure(replay_stream, new_leveler(), dd.death, endurance_scale=lt.endurance_scale,
                                 capacity_loss=cl)
         if not reachable:
             b.end_writes, b.reached_end = float("inf"), False

@@ -13,17 +13,20 @@ import numpy as np
 from memsim import __version__
 from memsim.config import RunConfig, load_config
 from memsim.config.load import locate, source_name
+from memsim.engine.fast import make_engine
 from memsim.engine.refresh_agent import RefreshAgent
 from memsim.engine.timing import TimingEngine, TimingTotals
 from memsim.errors import ConfigError
 from memsim.experiment.build import build_path, build_source, source_fields
 from memsim.experiment.checks import check_parts
 from memsim.experiment.lifetime import lifetime_fields
-from memsim.metrics.result import RunResult, latency_histogram, latency_stats
+from memsim.experiment.progress import track
+from memsim.metrics.result import RunResult
 from memsim.policy.refresh import check_refresh_load, plan_refresh
 from memsim.policy.write.bits import popcount_rows
 from memsim.policy.writepath import WritePath
 from memsim.tech.technology import summary_fields as technology_summary
+from memsim.workload.chunk import READ, WRITE
 
 
 def resolve(config: str | Path | Mapping | RunConfig | None, overrides: Mapping[str, Any] | None = None,
@@ -41,27 +44,11 @@ def resolve(config: str | Path | Mapping | RunConfig | None, overrides: Mapping[
     return cfg
 
 
-def sampled_in_system(arrival: np.ndarray, finish: np.ndarray, horizon: float,
-                      samples: int = 4096) -> float:
-    """Time-average number of requests in the system, sampled on an even grid.
-
-    An estimate from the sample path, independent of the latency average, so
-    Little's law can be checked against it.
-    """
-    if horizon <= 0 or arrival.size == 0:
-        return 0.0
-    grid = (np.arange(samples) + 0.5) * horizon / samples
-    a = np.searchsorted(np.sort(arrival), grid, side="right")
-    f = np.searchsorted(np.sort(finish), grid, side="right")
-    return float((a - f).mean())
-
-
 def summarize(cfg: RunConfig, tot: TimingTotals, path: WritePath) -> dict[str, Any]:
     """The flat summary dict of a run (units in the names)."""
     line_bytes = cfg.array.line_bytes
     sim = tot.simulated_ns
     n = tot.requests
-    lat, op = tot.latency_ns, tot.op
     s: dict[str, Any] = {
         "requests": n,
         "reads": tot.reads,
@@ -70,8 +57,9 @@ def summarize(cfg: RunConfig, tot: TimingTotals, path: WritePath) -> dict[str, A
         "throughput_gbps": n * line_bytes / sim if sim > 0 else 0.0,
         "requests_per_s": n / sim * 1e9 if sim > 0 else 0.0,
     }
-    s.update(latency_stats(lat[op == 0], "read_latency"))
-    s.update(latency_stats(lat[op == 1], "write_latency"))
+    # Percentiles from the streamed histogram (relative error <= stream.REL_ERROR).
+    s.update(tot.stream.stats(READ, "read_latency"))
+    s.update(tot.stream.stats(WRITE, "write_latency"))
     energy = (tot.read_pj + tot.set_pj + tot.reset_pj + tot.mlc_pj + tot.cancelled_pj + tot.preset_pj
               + tot.refresh_pj + tot.erase_pj)
     bits = n * line_bytes * 8
@@ -90,7 +78,7 @@ def summarize(cfg: RunConfig, tot: TimingTotals, path: WritePath) -> dict[str, A
         "set_cells_per_write": tot.user_set_cells / tot.writes if tot.writes else 0.0,
         "reset_cells_per_write": tot.user_reset_cells / tot.writes if tot.writes else 0.0,
         "bank_utilization": float(tot.bank_busy_ns.mean() / sim) if sim > 0 else 0.0,
-        "mean_in_system": sampled_in_system(tot.arrival_ns, tot.finish_ns, sim),
+        "mean_in_system": tot.stream.mean_in_system(sim),
         "leveling_move_writes": tot.move_writes,
         "write_cancellations": tot.cancellations,
         "cancelled_cells": tot.cancelled_cells,
@@ -208,7 +196,9 @@ def _simulate(cfg: RunConfig) -> RunResult:
     source = build_source(cfg, rng)
     try:
         plan = plan_refresh(cfg)
-        engine = TimingEngine(cfg, source, path, plan, np.random.default_rng([cfg.run.seed, 1]))
+        total = cfg.workload.requests if cfg.workload.pattern != "trace" else None
+        chunks = track(source, total, "req", f"run {cfg.run.name}")
+        engine = make_engine(cfg, chunks, path, plan, np.random.default_rng([cfg.run.seed, 1]))
         if plan.active:
             lines_per_bank, service = refresh_demand(engine)
             check_refresh_load(plan, lines_per_bank, service, expected_span_ns(cfg))
@@ -217,9 +207,10 @@ def _simulate(cfg: RunConfig) -> RunResult:
         if source.reader is not None:
             source.reader.close()       # stop the trace's read-ahead thread on every path
     summary = summarize(cfg, tot, path)
+    summary["engine"] = engine.name
     summary.update(refresh_fields(tot, engine.agent, summary))
     summary.update(erase_fields(engine, summary))
     summary.update(source_fields(source))
-    tables = {"latency_histogram": latency_histogram(tot.latency_ns, tot.op)}
+    tables = {"latency_histogram": tot.stream.table()}
     return RunResult(summary, tables, cfg.model_dump(), cfg.run.seed, __version__,
                      time.perf_counter() - t0)

@@ -19,7 +19,7 @@ import numpy as np
 
 from memsim.policy.leveling.base import Leveler
 from memsim.policy.write.base import WriteScheme
-from memsim.policy.write.bits import popcount_rows
+from memsim.policy.write.bits import add_cell_wear, popcount_rows
 from memsim.workload.content import DataModel
 
 
@@ -177,10 +177,7 @@ class WritePath:
                 continue
             self.line_cells[d] += ns + nr
             if self.cell_wear is not None:
-                prog = np.unpackbits(enc.set_mask | enc.reset_mask, axis=1)
-                if enc.flag_set.shape[1]:
-                    prog = np.concatenate([prog, (enc.flag_set | enc.flag_reset)], axis=1)
-                self.cell_wear[d] += prog
+                add_cell_wear(self.cell_wear, d, enc.set_mask | enc.reset_mask, enc.flag_set | enc.flag_reset)
         self.user_writes += n
         self.move_writes += m
         self.meta_writes += mv.cost_writes

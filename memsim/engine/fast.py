@@ -1,0 +1,364 @@
+"""The fast timing engine: op columns fed to a compiled event loop.
+
+Same controller and same results as the simpy reference
+(:class:`memsim.engine.timing.TimingEngine`), request for request; see
+:mod:`memsim.engine.kernel` for how the event order is kept.  Features the
+kernel does not cover yet are listed by :func:`unsupported`; a run that
+uses one goes to the reference engine (:func:`make_engine`).
+"""
+from __future__ import annotations
+
+from collections.abc import Iterable
+
+import numpy as np
+
+from memsim.engine import kernel as K
+from memsim.engine.ops import OpColumns, prepare_ops
+from memsim.engine.refresh_agent import URGENT, RefreshAgent
+from memsim.engine.stream import LatencyStream
+from memsim.engine.timing import TimingEngine, TimingTotals, price_energy
+from memsim.policy.refresh import RefreshPlan
+from memsim.policy.writepath import WritePath
+from memsim.workload.chunk import Chunk
+
+ENGINES = ("fast", "reference")
+
+
+def unsupported(cfg, path: WritePath, plan: RefreshPlan | None) -> list[str]:
+    """Features of this run the compiled kernel does not cover (empty: it runs)."""
+    gaps = []
+    if path.scheme.out_of_place:
+        gaps.append("block erase (write.scheme block_erase)")
+    w = cfg.workload
+    if cfg.controller.hint_preset and (w.hint_lead_ns > 0 or w.pattern == "trace"):
+        gaps.append("hint pre-programming with hints in the stream (controller.hint_preset)")
+    if plan is not None and plan.policy == "scrub":
+        gaps.append("refresh policy scrub")
+    return gaps
+
+
+class FastEngine(TimingEngine):
+    """Compiled twin of :class:`TimingEngine` (same constructor, same totals)."""
+
+    name = "fast"
+
+    def __init__(self, cfg, source: Iterable[Chunk], path: WritePath,
+                 refresh: RefreshPlan | None = None, rng: np.random.Generator | None = None) -> None:
+        super().__init__(cfg, source, path, refresh, rng)
+        gaps = unsupported(cfg, path, refresh)
+        if gaps:
+            raise ValueError("the fast engine does not cover: " + "; ".join(gaps))
+
+    def _queue_hints(self, hints: Chunk) -> None:
+        raise RuntimeError("the fast engine does not pre-program from hints; use the reference engine")
+
+    # ------------------------------------------------------------ state
+    def _alloc(self) -> None:
+        cfg = self.cfg
+        c, p = cfg.controller, cfg.power
+        nb = self.amap.total_banks
+        rcap, wcap = c.read_queue, c.write_queue
+        self.pi = pi = np.zeros(K.N_PI, np.int64)
+        pi[K.P_NB], pi[K.P_RCAP], pi[K.P_WCAP] = nb, rcap, wcap
+        pi[K.P_HIGH], pi[K.P_LOW], pi[K.P_IDLEW] = c.drain_high, c.drain_low, c.idle_writes
+        pi[K.P_CLOSED], pi[K.P_LIMIT] = self.closed, cfg.workload.outstanding
+        pi[K.P_EXT], pi[K.P_CANCEL], pi[K.P_PAUSE] = self.extended, c.write_cancel, c.write_pause
+        n_pools = 0
+        if p.budget_ua > 0:
+            n_pools = cfg.array.channels if p.scope == "channel" else 1
+        pi[K.P_NPOOLS], pi[K.P_CAS] = n_pools, self.cost_at_service
+        per_reset, per_set = self.cell.cells_per_round(self.round_budget_ua)
+        pi[K.P_PER_RESET], pi[K.P_PER_SET] = per_reset, per_set
+        pi[K.P_EXTRA_BITS] = self.line_bits + self.path.scheme.flag_cells
+        cell = self.cell
+        self.pf = pf = np.zeros(K.N_PF)
+        pf[K.F_BURST], pf[K.F_READ], pf[K.F_HIT] = cfg.array.burst_ns, cell.read_ns, cfg.array.row_hit_ns
+        pf[K.F_CANCEL_BEFORE], pf[K.F_RESET_NS], pf[K.F_SET_NS] = c.cancel_before, cell.reset_ns, cell.set_ns
+        pf[K.F_POOL_CAP] = p.budget_ua
+        pf[K.F_RESET_UA], pf[K.F_SET_UA] = cell.reset_ua, cell.set_ua
+        self.ist = np.zeros(K.N_IST, np.int64)
+        self.fst = np.zeros(K.N_FST)
+        # One pending event per process, plus at most one current return per bank.
+        # One pending event per process (source, banks, refresh scans), plus
+        # at most one current return per bank.
+        n_events = 3 * nb + 2
+        self.ht = np.zeros(n_events)
+        self.hs = np.zeros(n_events, np.int64)
+        self.hp = np.zeros(n_events, np.int64)
+        self.bi = np.zeros((nb, K.N_BI), np.int64)
+        self.bi[:, K.B_ROW] = -1
+        self.bf = np.zeros((nb, K.N_BF))
+        n_slots = 1024
+        self.sf = np.zeros((n_slots, K.N_SF))
+        self.si = np.zeros((n_slots, K.N_SI), np.int64)
+        self.free = np.arange(n_slots - 1, -1, -1, dtype=np.int64)
+        self.ist[K.FREE_TOP] = n_slots
+        self.ib = np.zeros((nb, rcap + wcap + 2), np.int64)
+        self.rq = np.zeros((nb, rcap + 2), np.int64)
+        self.wq = np.zeros((nb, wcap + 2), np.int64)
+        self.ibh, self.ibn = np.zeros(nb, np.int64), np.zeros(nb, np.int64)
+        self.rqh, self.rqn = np.zeros(nb, np.int64), np.zeros(nb, np.int64)
+        self.wqh, self.wqn = np.zeros(nb, np.int64), np.zeros(nb, np.int64)
+        self.rpend, self.wpend = np.zeros(nb, np.int64), np.zeros(nb, np.int64)
+        self.bus_free = np.zeros(cfg.array.channels)
+        self.pool_level = np.full(max(n_pools, 1), float(p.budget_ua))
+        self.pq = np.zeros((max(n_pools, 1), nb + 1), np.int64)
+        self.pqh, self.pqn = np.zeros(max(n_pools, 1), np.int64), np.zeros(max(n_pools, 1), np.int64)
+        self.clog = np.zeros((4096, 2), np.int64)
+        self.fq = [_RefreshQueue() for _ in range(nb)]     # the refresh agent appends here
+        self.fqa = np.zeros((nb, 64), np.int64)             # the kernel's refresh queues
+        self.fqh, self.fqn = np.zeros(nb, np.int64), np.zeros(nb, np.int64)
+        self.hlog = np.zeros((4096, 2))
+        pi[K.P_SCAN_BASE] = nb + 1 + self.pool_level.size
+        pi[K.P_CLOSED_REFRESH] = self.closed_refresh
+        pi[K.P_URGENT] = URGENT
+        scans = self.agent is not None and self.plan.active and np.isfinite(self.plan.scan_ns)
+        pf[K.F_SCAN_NS] = self.plan.scan_ns if scans else 0.0
+        # Process start order as in simpy: the source, bank 0, 1, ..., then
+        # the refresh scans.
+        pids = [nb] + list(range(nb))
+        if scans:
+            self.ist[K.REFRESH_RUNNING] = nb
+            pids += [int(pi[K.P_SCAN_BASE]) + b for b in range(nb)]
+        for pid in pids:
+            K._push(self.ht, self.hs, self.hp, self.ist, 0.0, pid)
+        self.ist[K.SRC_RUN] = 0
+        self.ist[K.SRC_K] = K.S_NEXT
+        # Per-request arrays only on request (run.keep_requests); the
+        # statistics stream in fixed memory.
+        self.keep = bool(getattr(cfg.run, "keep_requests", False))
+        cap = 1 << 16 if self.keep else 0
+        self.arrival = np.full(cap, np.nan)
+        self.finish = np.full(cap, np.nan)
+        self.op = np.zeros(cap, np.int8)
+        self.n_req = 0
+        self.stream = LatencyStream()
+        self.done_f = np.zeros((1 << 16, 2))
+        self.done_i = np.zeros((1 << 16, 2), np.int64)
+        self.max_finish = 0.0
+
+    def _grow_slots(self) -> None:
+        n = self.sf.shape[0]
+        self.sf = np.concatenate([self.sf, np.zeros_like(self.sf)])
+        self.si = np.concatenate([self.si, np.zeros_like(self.si)])
+        top = int(self.ist[K.FREE_TOP])
+        free = np.empty(2 * n, np.int64)
+        free[:n] = np.arange(2 * n - 1, n - 1, -1)
+        free[n:n + top] = self.free[:top]
+        self.free = free
+        self.ist[K.FREE_TOP] = n + top
+
+    def _take_requests(self, ops: OpColumns) -> int:
+        """Append a chunk's requests to the per-request arrays; its first global index."""
+        base, n = self.n_req, ops.op.size
+        self.n_req = base + n
+        if not self.keep:
+            return base
+        if base + n > self.arrival.size:
+            cap = max(2 * self.arrival.size, base + n)
+            for name, fill in (("arrival", np.nan), ("finish", np.nan), ("op", 0)):
+                old = getattr(self, name)
+                new = np.full(cap, fill, old.dtype)
+                new[:base] = old[:base]
+                setattr(self, name, new)
+        self.arrival[base:base + n] = ops.arrival
+        self.op[base:base + n] = ops.op
+        return base
+
+    @staticmethod
+    def _columns(ops: OpColumns) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        nr, nw = ops.n_reads, ops.w_req.size
+        o = ops.order
+        c_f = np.zeros((nr + nw, 4))
+        c_f[nr:, 0], c_f[nr:, 1], c_f[nr:, 2], c_f[nr:, 3] = ops.service, ops.current, ops.pre, ops.pj
+        c_i = np.zeros((nr + nw, K.N_SI), np.int64)
+        c_i[:nr, K.SI_READ] = 1
+        c_i[:, K.SI_REQ] = np.concatenate([ops.r_idx, ops.w_req])
+        c_i[:, K.SI_CH] = np.concatenate([ops.r_ch, ops.w_ch])
+        c_i[:nr, K.SI_ROW] = ops.r_row
+        c_i[nr:, K.SI_ROW] = -1
+        c_i[:, K.SI_PHYS] = np.concatenate([ops.r_phys, ops.w_phys])
+        c_i[:nr, K.SI_BUS] = 1
+        c_i[nr:, K.SI_BUS] = ops.uses_bus
+        c_i[nr:, K.SI_RR], c_i[nr:, K.SI_SR], c_i[nr:, K.SI_CELLS] = ops.rr, ops.sr, ops.cells
+        c_i[nr:, K.SI_NSET], c_i[nr:, K.SI_NRESET] = ops.n_set, ops.n_reset
+        bank = np.concatenate([ops.r_bank, ops.w_bank]).astype(np.int64)
+        return (np.ascontiguousarray(ops.t, dtype=float), bank[o], np.ascontiguousarray(c_f[o]),
+                np.ascontiguousarray(c_i[o]))
+
+    def _call(self, cols, base: int) -> int:
+        fst, ist = self.fst, self.ist
+        while True:
+            status = K.run_kernel(
+                self.pi, self.pf, ist, fst, self.ht, self.hs, self.hp, self.bi, self.bf,
+                self.sf, self.si, self.free, self.ib, self.ibh, self.ibn, self.rq, self.rqh, self.rqn,
+                self.wq, self.wqh, self.wqn, self.rpend, self.wpend, self.bus_free, self.pool_level,
+                self.pq, self.pqh, self.pqn, cols[0], cols[1], cols[2], cols[3], base,
+                self.done_f, self.done_i, self.clog, self.fqa, self.fqh, self.fqn, self.hlog)
+            self._flush_cancel_wear()
+            self._flush_done()
+            self._flush_handovers()
+            if status == K.SCAN:
+                self._scan(int(ist[K.SCAN_B]))
+                continue
+            if status == K.NEED_SLOTS:
+                self._grow_slots()
+                continue
+            if status == K.FLUSH:
+                continue
+            if status == K.FAILED:
+                raise RuntimeError("fast engine: a power-pool return had to wait (not modeled)")
+            break
+        return status
+
+    def _flush_cancel_wear(self) -> None:
+        n = int(self.ist[K.CLOG_N])
+        if n > self.clog.shape[0]:
+            raise RuntimeError("fast engine: cancellation log overflow")
+        if n:
+            self.cancel_wear(self.clog[:n, 0], self.clog[:n, 1])
+            self.ist[K.CLOG_N] = 0
+
+    def _flush_done(self) -> None:
+        n = int(self.ist[K.DONE_N])
+        if not n:
+            return
+        f, i = self.done_f[:n], self.done_i[:n]
+        self.stream.add(i[:, 1], f[:, 0], f[:, 1])
+        self.max_finish = max(self.max_finish, float(f[:, 1].max()))
+        if self.keep:
+            self.finish[i[:, 0]] = f[:, 1]
+            self.arrival[i[:, 0]] = f[:, 0]     # closed loop: the time of hand-over
+        self.ist[K.DONE_N] = 0
+
+    def _flush_handovers(self) -> None:
+        n = int(self.ist[K.HLOG_N])
+        if n:
+            # One at a time, as the reference hands them over: the agent
+            # sums failure probabilities per noted batch.
+            note = self.agent.note_writes
+            for t, p in zip(self.hlog[:n, 0].tolist(), self.hlog[:n, 1].astype(np.int64).tolist()):
+                note(np.array([t]), np.array([p]))
+            self.ist[K.HLOG_N] = 0
+
+    def _scan(self, b: int) -> None:
+        """A refresh scan of bank ``b`` is due (the reference's scan process)."""
+        ist, fst = self.ist, self.fst
+        if ist[K.SRC_DONE] and ist[K.IN_FLIGHT] == 0:
+            ist[K.REFRESH_RUNNING] -= 1
+            K.wake_all(self.amap.total_banks, self.bi, ist, fst, self.ht, self.hs, self.hp)
+            return
+        now = float(fst[K.NOW])
+        self.agent.scan_once(b, now)
+        K.push_event(self.ht, self.hs, self.hp, ist, now + self.plan.scan_ns, int(self.pi[K.P_SCAN_BASE]) + b)
+
+    def _wake(self, b: int, at: float) -> None:
+        """The refresh agent queued operations for bank ``b``: hand them over, wake it."""
+        items = self.fq[b].take()
+        if items:
+            ch, service, current, phys = (np.array(c) for c in zip(*((it[1], it[2], it[4], it[10])
+                                                                     for _, it in items)))
+            while int(self.ist[K.FREE_TOP]) < len(items):
+                self._grow_slots()
+            need = int(self.fqn[b]) + len(items)
+            if need > self.fqa.shape[1]:
+                self._grow_refresh_queues(need)
+            K.queue_refreshes(b, ch.astype(np.int64), service.astype(float), current.astype(float),
+                              phys.astype(np.int64), self.sf, self.si, self.free, self.ist,
+                              self.fqa, self.fqh, self.fqn, float(self.fst[K.NOW]))
+        K.wake(b, at, self.bi, self.ist, self.fst, self.ht, self.hs, self.hp)
+
+    def _grow_refresh_queues(self, need: int) -> None:
+        cap = self.fqa.shape[1]
+        new_cap = max(2 * cap, need)
+        new = np.zeros((self.fqa.shape[0], new_cap), np.int64)
+        for b in range(self.fqa.shape[0]):
+            k = int(self.fqn[b])
+            new[b, :k] = self.fqa[b, (self.fqh[b] + np.arange(k)) % cap]
+        self.fqa = new
+        self.fqh[:] = 0
+
+    def cancel_wear(self, phys: np.ndarray, wasted: np.ndarray) -> None:
+        """Cells programmed by aborted writes (the reference counts them one by one)."""
+        np.add.at(self.path.line_cells, phys, wasted)
+
+    # ------------------------------------------------------------ simulation
+    def run(self) -> TimingTotals:
+        self.source_done = False
+        if self.plan is not None:
+            self.agent = RefreshAgent(self, self.plan, self.rng)
+        self._alloc()
+        nb = self.amap.total_banks
+        empty = (np.zeros(0), np.zeros(0, np.int64), np.zeros((0, 4)), np.zeros((0, K.N_SI), np.int64))
+        status = K.NEED_CHUNK
+        for chunk in self.source:
+            ops = prepare_ops(self, chunk)
+            base = self._take_requests(ops)
+            if not self.closed:
+                self.ist[K.IN_FLIGHT] += ops.users
+            # The source resumes where it asked for the chunk (at the start,
+            # its first event in the heap).
+            self.ist[K.SRC_POS] = 0
+            status = self._call(self._columns(ops), base)
+            if status != K.NEED_CHUNK:
+                raise RuntimeError(f"fast engine: unexpected kernel status {status}")
+        K.source_done(self.pi, self.ist, self.fst, self.bi, self.ht, self.hs, self.hp)
+        self.source_done = True
+        status = self._call(empty, 0)
+        if status != K.FINISHED:
+            raise RuntimeError(f"fast engine: unexpected kernel status {status}")
+        self._flush_handovers()
+        return self._finish_fast(nb)
+
+    def _finish_fast(self, nb: int) -> TimingTotals:
+        tot, ist, fst = self.totals, self.ist, self.fst
+        n = self.n_req if self.keep else 0
+        tot.arrival_ns = self.arrival[:n].copy()
+        tot.finish_ns = self.finish[:n].copy()
+        tot.op = self.op[:n].copy()
+        tot.latency_ns = tot.finish_ns - tot.arrival_ns
+        tot.stream = self.stream
+        tot.simulated_ns = self.max_finish
+        tot.bank_busy_ns = self.bf[:, K.BF_BUSY].copy()
+        tot.power_wait_ns = float(fst[K.POWER_WAIT])
+        tot.refresh_busy_ns = float(fst[K.REFRESH_BUSY])
+        tot.cancellations = int(ist[K.CANCELS])
+        tot.cancelled_pj = float(fst[K.CANC_PJ])
+        tot.cancelled_cells = int(ist[K.CANC_CELLS])
+        tot.pauses = int(ist[K.PAUSES])
+        tot.user_set_cells += int(ist[K.USER_SET])
+        tot.user_reset_cells += int(ist[K.USER_RESET])
+        tot.set_cells += int(ist[K.SET_CELLS])
+        tot.reset_cells += int(ist[K.RESET_CELLS])
+        tot.read_bits += int(ist[K.READ_BITS])
+        price_energy(tot, self.cell)
+        if self.agent is not None:
+            self.agent.finish(tot.simulated_ns)
+            tot.refresh_pj = self.agent.energy_pj
+        return tot
+
+
+class _RefreshQueue:
+    """Where the refresh agent appends operations; the engine moves them into the kernel."""
+
+    def __init__(self) -> None:
+        self.items: list = []
+
+    def append(self, item) -> None:
+        self.items.append(item)
+
+    def take(self) -> list:
+        items, self.items = self.items, []
+        return items
+
+    def __len__(self) -> int:
+        return len(self.items)
+
+
+def make_engine(cfg, source: Iterable[Chunk], path: WritePath, refresh: RefreshPlan | None = None,
+                rng: np.random.Generator | None = None) -> TimingEngine:
+    """The engine ``run.engine`` asks for, or the reference where the fast one has a gap."""
+    want = getattr(cfg.run, "engine", "fast")
+    if want == "fast" and not unsupported(cfg, path, refresh):
+        return FastEngine(cfg, source, path, refresh, rng)
+    return TimingEngine(cfg, source, path, refresh, rng)

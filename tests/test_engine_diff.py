@@ -1,0 +1,257 @@
+"""The fast (compiled) timing engine against the simpy reference, request for request.
+
+The kernel takes the same float operations in the same order as the
+reference (same event order, same sums), so every comparison here is exact:
+finish time of every request, every counter and sum of the totals, the
+wear counters and the whole summary.  (No 1e-9 tolerance is needed anywhere;
+if one is ever needed it must be named here with the sum whose order
+differs.)
+"""
+import math
+
+import numpy as np
+import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+from memsim import simulate
+from memsim.config import load_config
+from memsim.engine.fast import FastEngine, make_engine, unsupported
+from memsim.engine.stream import LatencyStream
+from memsim.engine.timing import TimingEngine
+from memsim.experiment.build import build_path, build_source
+from memsim.policy.refresh import plan_refresh
+
+
+def _run(cls, ov):
+    cfg = load_config(None, {**ov, "run.keep_requests": True})
+    rng = np.random.default_rng(cfg.run.seed)
+    path = build_path(cfg, rng)
+    plan = plan_refresh(cfg)
+    eng = cls(cfg, build_source(cfg, rng), path, plan, np.random.default_rng([cfg.run.seed, 1]))
+    return eng.run(), path
+
+
+def _same(a, b):
+    if isinstance(a, float) and isinstance(b, float) and math.isnan(a) and math.isnan(b):
+        return True
+    return a == b
+
+
+def assert_engines_agree(ov):
+    ref, p_ref = _run(TimingEngine, ov)
+    fast, p_fast = _run(FastEngine, ov)
+    assert ref.requests == fast.requests
+    np.testing.assert_array_equal(fast.arrival_ns, ref.arrival_ns)
+    np.testing.assert_array_equal(fast.finish_ns, ref.finish_ns)     # NaN-aware, exact
+    np.testing.assert_array_equal(fast.latency_ns, ref.latency_ns)
+    np.testing.assert_array_equal(fast.op, ref.op)
+    np.testing.assert_array_equal(fast.bank_busy_ns, ref.bank_busy_ns)
+    for k, v in vars(ref).items():
+        if not isinstance(v, np.ndarray | LatencyStream):
+            assert _same(getattr(fast, k), v), k
+    for part in ("counts", "fs", "grid", "gstep"):      # streamed in the same completion order
+        np.testing.assert_array_equal(getattr(fast.stream, part), getattr(ref.stream, part))
+    np.testing.assert_array_equal(p_fast.line_cells, p_ref.line_cells)
+    np.testing.assert_array_equal(p_fast.line_writes, p_ref.line_writes)
+    return ref, fast
+
+
+configs = st.fixed_dictionaries({
+    "run.seed": st.integers(0, 10_000),
+    "run.chunk_requests": st.sampled_from([1024, 65536]),
+    "workload.requests": st.integers(200, 2500),
+    "array.lines": st.sampled_from([256, 4096]),
+    "array.channels": st.integers(1, 2),
+    "array.banks": st.integers(1, 4),
+    "array.row_lines": st.sampled_from([0, 4]),
+    "array.burst_ns": st.sampled_from([0.0, 5.0]),
+    "workload.read_fraction": st.sampled_from([0.0, 0.3, 0.7, 1.0]),
+    "workload.interval_ns": st.sampled_from([5.0, 20.0, 60.0, 300.0]),
+    "workload.arrival": st.sampled_from(["poisson", "fixed", "onoff", "closed"]),
+    "workload.outstanding": st.integers(1, 12),
+    "workload.size_lines": st.sampled_from([1, 3]),
+    "workload.pattern": st.sampled_from(["uniform", "zipf", "hot_set"]),
+    "controller.read_queue": st.integers(1, 8),
+    "controller.write_queue": st.integers(1, 8),
+    "controller.drain_high": st.integers(1, 8),
+    "controller.drain_low": st.integers(0, 4),
+    "controller.idle_writes": st.booleans(),
+    "controller.write_cancel": st.booleans(),
+    "controller.cancel_before": st.sampled_from([0.3, 0.75, 1.0]),
+    "controller.write_pause": st.booleans(),
+    "controller.hint_preset": st.booleans(),
+    "write.scheme": st.sampled_from(["full_line", "data_comparison", "flip_n_write"]),
+    "leveling.scheme": st.sampled_from(["none", "start_gap"]),
+    "leveling.psi": st.sampled_from([3, 50]),
+    "power.budget_ua": st.sampled_from([0.0, 20000.0, 60000.0, 1e9]),
+    "power.scope": st.sampled_from(["device", "channel"]),
+    "cell.preset": st.sampled_from(["pcm_slc", "pcm_slc", "pcm_mlc2"]),
+})
+
+
+def _consistent(ov):
+    # Drain thresholds inside the write queue (the config's own rule).
+    ov["controller.drain_high"] = min(ov["controller.drain_high"], ov["controller.write_queue"])
+    ov["controller.drain_low"] = min(ov["controller.drain_low"], ov["controller.drain_high"] - 1)
+    if ov["cell.preset"] != "pcm_slc":
+        # Pausing stops between SLC programming rounds; program-and-verify writes refuse it.
+        ov["controller.write_pause"] = False
+    return ov
+
+
+@settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(configs.map(_consistent))
+def test_fast_engine_matches_reference(ov):
+    cfg = load_config(None, ov)
+    assert not unsupported(cfg, build_path(cfg, np.random.default_rng(0)), plan_refresh(cfg))
+    assert_engines_agree(ov)
+
+
+FEATURES = {
+    "plain": {},
+    "row buffer": {"array.row_lines": 8},
+    "closed loop": {"workload.arrival": "closed", "workload.outstanding": 6},
+    "closed, writes held": {"workload.arrival": "closed", "controller.idle_writes": False},
+    "back-pressure": {"controller.read_queue": 2, "controller.write_queue": 2, "controller.drain_high": 2,
+                      "controller.drain_low": 0, "workload.interval_ns": 8.0},
+    "cancellation": {"controller.write_cancel": True, "workload.interval_ns": 40.0},
+    "pausing": {"controller.write_pause": True, "workload.interval_ns": 40.0},
+    "power budget": {"power.budget_ua": 40000.0, "array.channels": 2},
+    "power per channel": {"power.budget_ua": 40000.0, "power.scope": "channel", "array.channels": 2},
+    "multi-level cells": {"cell.preset": "pcm_mlc2"},
+    "leveler moves": {"leveling.scheme": "start_gap", "leveling.psi": 5},
+    "hint mode, no hints": {"controller.hint_preset": True},
+    "everything": {"controller.write_cancel": True, "controller.write_pause": True,
+                   "power.budget_ua": 30000.0, "array.row_lines": 8, "leveling.scheme": "start_gap",
+                   "workload.arrival": "closed", "array.channels": 2},
+}
+
+
+@pytest.mark.parametrize("extra", FEATURES.values(), ids=FEATURES.keys())
+def test_each_feature_matches_reference(extra):
+    ref, _ = assert_engines_agree({"workload.requests": 6000, "array.lines": 4096, **extra})
+    # The feature did something (so the comparison is not vacuous).
+    if "controller.write_cancel" in extra and len(extra) == 2:
+        assert ref.cancellations > 0
+    if "controller.write_pause" in extra and len(extra) == 2:
+        assert ref.pauses > 0
+    if "power.budget_ua" in extra and len(extra) <= 3:
+        assert ref.power_wait_ns > 0
+
+
+# 2-bit cells that drift, 1024 modeled lines standing for 1e4 device lines
+# each (as in test_refresh.py): refresh ages of a few ms of simulated time.
+DRIFTING = {"cell.preset": "pcm_mlc2", "array.lines": 1024, "array.banks": 8,
+            "array.capacity_gib": 1e4 * 1024 * 64 / 2**30, "workload.interval_ns": 500.0,
+            "workload.requests": 4000}
+
+refresh_configs = st.fixed_dictionaries({
+    "run.seed": st.integers(0, 1000),
+    "refresh.policy": st.sampled_from(["periodic", "drift"]),
+    "refresh.interval_s": st.sampled_from([20.0, 60.0]),
+    "refresh.start": st.sampled_from(["spread", "fresh"]),
+    "workload.read_fraction": st.sampled_from([0.5, 0.9, 1.0]),
+    "workload.arrival": st.sampled_from(["poisson", "closed"]),
+    "controller.write_cancel": st.booleans(),
+    # (Budgets or refresh intervals much tighter than these overload the
+    # banks: the refresh backlog then grows for as long as the run lasts.)
+    "power.budget_ua": st.sampled_from([0.0, 100000.0]),
+})
+
+
+@settings(max_examples=12, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(refresh_configs)
+def test_fast_engine_matches_reference_with_refresh(ov):
+    ov = {**DRIFTING, **ov}
+    ref, _ = assert_engines_agree(ov)
+    assert_summaries_agree(ov)
+
+
+def assert_summaries_agree(ov):
+    fast = simulate(None, overrides={**ov, "run.engine": "fast"}).summary
+    ref = simulate(None, overrides={**ov, "run.engine": "reference"}).summary
+    assert fast.pop("engine") == "fast" and ref.pop("engine") == "reference"
+    assert fast.keys() == ref.keys()
+    for k in ref:
+        assert _same(fast[k], ref[k]), k
+    return ref
+
+
+@pytest.mark.parametrize("extra", [
+    {"refresh.policy": "drift", "workload.read_fraction": 0.9, "refresh.start": "spread"},
+    {"refresh.policy": "periodic", "refresh.interval_s": 20.0, "refresh.start": "spread",
+     "workload.read_fraction": 1.0},
+    {"refresh.policy": "drift", "workload.arrival": "closed", "refresh.start": "spread"},
+], ids=["drift", "periodic", "drift closed loop"])
+def test_refresh_matches_reference(extra):
+    s = assert_summaries_agree({**DRIFTING, **extra})
+    assert s["refreshes"] > 0
+
+
+def test_summary_identical_and_names_engine():
+    ov = {"workload.requests": 5000, "controller.write_cancel": True, "power.budget_ua": 40000.0}
+    fast = simulate(None, overrides={**ov, "run.engine": "fast"}).summary
+    ref = simulate(None, overrides={**ov, "run.engine": "reference"}).summary
+    assert fast.pop("engine") == "fast" and ref.pop("engine") == "reference"
+    assert fast.keys() == ref.keys()
+    for k in ref:
+        assert _same(fast[k], ref[k]), k
+
+
+@pytest.mark.parametrize("extra, gap", [
+    ({"write.scheme": "block_erase"}, "block erase"),
+    ({"controller.hint_preset": True, "workload.hint_lead_ns": 500.0}, "hint"),
+    ({"refresh.policy": "scrub"}, "refresh"),
+])
+def test_gap_falls_back_to_reference(extra, gap):
+    cfg = load_config(None, {"workload.requests": 2000, **extra})
+    rng = np.random.default_rng(cfg.run.seed)
+    path = build_path(cfg, rng)
+    gaps = unsupported(cfg, path, plan_refresh(cfg))
+    assert any(gap in g for g in gaps)
+    eng = make_engine(cfg, build_source(cfg, rng), path, plan_refresh(cfg))
+    assert eng.name == "reference"
+    s = simulate(None, overrides={"workload.requests": 2000, **extra}).summary
+    assert s["engine"] == "reference"
+
+
+INACTIVE = {
+    # A shared budget far above what all banks can draw at once never binds.
+    "power budget that never binds": {"power.budget_ua": 1e9},
+    "hint_preset without hints": {"controller.hint_preset": True},
+    # Without reads nothing can cancel or pause a write.
+    "cancellation without reads": {"controller.write_cancel": True, "controller.cancel_before": 1.0,
+                                   "workload.read_fraction": 0.0},
+    "pausing without reads": {"controller.write_pause": True, "workload.read_fraction": 0.0},
+}
+
+
+@pytest.mark.parametrize("engine", ["fast", "reference"])
+@pytest.mark.parametrize("extra", INACTIVE.values(), ids=INACTIVE.keys())
+def test_inactive_feature_changes_nothing(extra, engine):
+    base = {"workload.requests": 20000, "write.scheme": "full_line", "workload.interval_ns": 120.0,
+            "run.engine": engine, **{k: v for k, v in extra.items() if k.startswith("workload.")}}
+    off = simulate(None, overrides=base).summary
+    on = simulate(None, overrides={**base, **extra}).summary
+    assert on.keys() == off.keys()
+    for k in off:
+        assert _same(on[k], off[k]), k
+
+
+@pytest.mark.parametrize("cls", [FastEngine, TimingEngine])
+def test_refresh_policy_none_changes_nothing(cls):
+    ov = {"workload.requests": 20000, "refresh.policy": "none"}
+    cfg = load_config(None, ov)
+    runs = []
+    for plan in (None, plan_refresh(cfg)):
+        rng = np.random.default_rng(cfg.run.seed)
+        path = build_path(cfg, rng)
+        tot = cls(cfg, build_source(cfg, rng), path, plan, np.random.default_rng(1)).run()
+        runs.append((tot, path))
+    (a, pa), (b, pb) = runs
+    np.testing.assert_array_equal(a.stream.counts, b.stream.counts)
+    np.testing.assert_array_equal(pa.line_cells, pb.line_cells)
+    for k, v in vars(a).items():
+        if not isinstance(v, np.ndarray | LatencyStream):
+            assert _same(getattr(b, k), v), k
