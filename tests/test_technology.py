@@ -94,3 +94,22 @@ def test_stt_run_reports_its_write_error_rates() -> None:
     want = stt_write_error_rate([20.0, 20.0], [97.0, 98.0], 45.0, 100.0, 1.0)
     assert [s["write_error_rate_set_side"], s["write_error_rate_reset_side"]] == pytest.approx(list(want), rel=1e-12)
     assert "write_error_rate_set_side" not in simulate(cfg("pcm_slc", workload={"requests": 500})).summary
+
+
+def test_stt_error_table_against_pulse_width_and_its_inverse() -> None:
+    # WER(t) = exp(-(t/tau0) exp(-Delta (1 - I/Ic0))) (Koch, Katine and Sun, Phys. Rev. Lett. 92,
+    # 2004; from memory): ln WER falls linearly in t, and the pulse for a target error rate inverts it.
+    from memsim.tech.technology import stt_error_table, stt_pulse_for_error_rate
+
+    cfg = load_config(None, {"cell.preset": "stt_mram"})
+    c = cfg.cell
+    tab = stt_error_table(cfg, np.array([5.0, 10.0, 20.0, 40.0]))
+    rate = math.exp(-c.stt_delta * (1 - c.set_ua / c.stt_ic0_ua)) / c.stt_attempt_ns
+    np.testing.assert_allclose(np.log(tab["wer_set_side"]), -tab["pulse_ns"] * rate, rtol=1e-12)
+    assert (np.diff(tab["wer_reset_side"]) < 0).all()
+    np.testing.assert_allclose(tab["attempts_set_side"], 1 / (1 - tab["wer_set_side"]), rtol=1e-12)
+    t = stt_pulse_for_error_rate(1e-9, c.set_ua, c.stt_delta, c.stt_ic0_ua, c.stt_attempt_ns)
+    assert stt_write_error_rate(t, c.set_ua, c.stt_delta, c.stt_ic0_ua, c.stt_attempt_ns) == pytest.approx(1e-9)
+    s = drift_report(None, cell__preset="stt_mram", refresh__max_fail_prob=1e-9)
+    assert s.summary["stt_set_pulse_for_target_ns"] == pytest.approx(t)
+    assert "write_error_rate" in s.tables

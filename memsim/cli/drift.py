@@ -42,6 +42,13 @@ def drift(config: str, sets: tuple[str, ...], out: str | None, replace: bool) ->
     click.echo("  ".join(f"{c:>14}" for c in cols))
     for _, row in t.iterrows():
         click.echo("  ".join(f"{fmt(float(row[c])):>14}" for c in cols))
+    wer = result.tables.get("write_error_rate")
+    if wer is not None:
+        click.echo("\nwrite error rate of one attempt against pulse width (STT-MRAM)")
+        cols = ["pulse_ns", "wer_set_side", "wer_reset_side", "attempts_set_side", "attempts_reset_side"]
+        click.echo("  ".join(f"{c:>19}" for c in cols))
+        for _, row in wer.iloc[::4].iterrows():
+            click.echo("  ".join(f"{fmt(float(row[c])):>19}" for c in cols))
     print_summary(result.summary, "\nrefresh need")
     report_saved(saved, err, " (figure drift_rber.png)")
 

@@ -20,6 +20,7 @@ from memsim.experiment.run import resolve
 from memsim.metrics.result import RunResult
 from memsim.tech.drift import error_table, rber_limit, refresh_age
 from memsim.tech.models import drift_params, mlc_cell
+from memsim.tech.technology import stt_error_table, stt_pulse_for_error_rate
 
 YEAR_S = 365.25 * 24 * 3600.0
 
@@ -88,6 +89,14 @@ def drift_report(config: str | Path | Mapping | RunConfig | None = None, **overr
         "drift_window_end_s": ra.window_end_s,
         "note": "; ".join(notes) if notes else "",
     }
-    return RunResult(summary, {"drift_errors": table, "drift_errors_dense": dense},
-                     cfg.model_dump(), cfg.run.seed, __version__)
+    tables = {"drift_errors": table, "drift_errors_dense": dense}
+    if cfg.cell.technology == "stt_mram":
+        # Switching errors, not drift, limit an STT-MRAM write: the error rate of one
+        # attempt against pulse width, and the pulse that reaches the ECC's target.
+        c = cfg.cell
+        tables["write_error_rate"] = stt_error_table(cfg)
+        for side, cur in (("set", c.set_ua), ("reset", c.reset_ua)):
+            summary[f"stt_{side}_pulse_for_target_ns"] = stt_pulse_for_error_rate(
+                r.max_fail_prob, cur, c.stt_delta, c.stt_ic0_ua, c.stt_attempt_ns)
+    return RunResult(summary, tables, cfg.model_dump(), cfg.run.seed, __version__)
 

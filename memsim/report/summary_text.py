@@ -81,11 +81,18 @@ SECTIONS: list[_Section] = [
              lambda k: k.startswith("energy") or k in (
                  "cells_programmed_per_write", "set_cells_per_write", "reset_cells_per_write",
                  "cells_per_ns")),
+    _Section("cells and ECC",
+             lambda k: k in ("bits_per_cell", "cells_per_line", "correctable_bits", "max_fail_prob",
+                             "temperature_k", "rber_limit")),
+    _Section("retention and write errors",
+             lambda k: k.startswith(("retention_", "drift_window", "stt_", "write_error_rate"))),
     _Section("wear and lifetime",
              lambda k: k.startswith(("lifetime", "wear", "leveling", "write_rate", "write_amplification",
                                      "line_scale"))),
 ]
-_CORE_ORDER = ["requests and throughput", "latency", "energy", "wear and lifetime"]
+_ALIGN_MAX = 24    # longer values (notes) are printed as they are, not right-aligned
+_CORE_ORDER = ["requests and throughput", "latency", "energy", "wear and lifetime", "cells and ECC",
+               "retention and write errors"]
 
 
 def fmt_value(v: Any) -> str:
@@ -160,13 +167,16 @@ def summary_lines(summary: Mapping[str, Any], config: Mapping | None = None,
         return []
     width = max(len(k) for _, keys in groups for k in keys)
     values = {k: fmt_value(summary[k]) for _, keys in groups for k in keys}
-    vwidth = max(len(v) for v in values.values())
+    # Numbers line up on the right; a long text (a note) is not allowed to push them.
+    vwidth = max((len(v) for v in values.values() if len(v) <= _ALIGN_MAX), default=1)
     lines: list[str] = []
     for title, keys in groups:
         lines.append(f"  {title}")
         for k in keys:
             unit = unit_of(k) if summary[k] is not None else ""
-            lines.append(f"    {k:<{width}}  {values[k]:>{vwidth}} {unit}".rstrip())
+            v = values[k]
+            text = f"{v:>{vwidth}}" if len(v) <= _ALIGN_MAX else v
+            lines.append(f"    {k:<{width}}  {text} {unit}".rstrip())
     hidden = len(summary) - sum(len(keys) for _, keys in groups)
     if hidden:
         lines.append(f"  ({hidden} keys of features that are off not shown; --full prints them)")

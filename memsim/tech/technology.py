@@ -59,6 +59,39 @@ def stt_write_error_rate(pulse_ns: np.ndarray | float, current_ua: np.ndarray | 
     return np.exp(-np.asarray(pulse_ns, dtype=np.float64) * rate)
 
 
+def stt_pulse_for_error_rate(target: float, current_ua: float, delta: float, ic0_ua: float,
+                             attempt_ns: float = 1.0) -> float:
+    """Pulse width, ns, at which one STT-MRAM write attempt fails with probability ``target``:
+    the inverse of :func:`stt_write_error_rate` in the pulse width."""
+    if not 0.0 < target < 1.0:
+        raise ValueError(f"target error rate {target} not in (0, 1)")
+    i = current_ua / ic0_ua
+    return -math.log(target) * attempt_ns * math.exp(delta * (1.0 - i))
+
+
+def stt_error_table(cfg, pulses_ns: np.ndarray | None = None):
+    """Write error rate of one attempt against pulse width, both write directions.
+
+    Columns ``pulse_ns``, ``wer_set_side``, ``wer_reset_side`` (one attempt
+    fails) and ``attempts_set_side``, ``attempts_reset_side`` (mean attempts
+    of a verified write, geometric: 1 / (1 - WER)).  The default pulses span
+    a decade either side of the preset's pulse.
+    """
+    import pandas as pd
+
+    c = cfg.cell
+    if pulses_ns is None:
+        mid = max(c.set_ns, c.reset_ns)
+        pulses_ns = np.logspace(np.log10(mid / 10), np.log10(mid * 10), 21)
+    pulses = np.asarray(pulses_ns, dtype=np.float64)
+    cols: dict[str, np.ndarray] = {"pulse_ns": pulses}
+    for side, cur in (("set_side", c.set_ua), ("reset_side", c.reset_ua)):
+        wer = stt_write_error_rate(pulses, cur, c.stt_delta, c.stt_ic0_ua, c.stt_attempt_ns)
+        cols[f"wer_{side}"] = wer
+        cols[f"attempts_{side}"] = 1.0 / -np.expm1(np.log(np.maximum(wer, 1e-300)))
+    return pd.DataFrame(cols)
+
+
 @dataclass(frozen=True)
 class Technology:
     name: str
