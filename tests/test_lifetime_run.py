@@ -234,10 +234,52 @@ def test_cell_cdf_against_scipy() -> None:
     # Truncated normal and lognormal endurance CDFs: scipy.stats.truncnorm, lognorm.
     y = np.linspace(0.05, 3.0, 40)
     ref = stats.truncnorm(a=-1 / 0.8, b=np.inf, loc=1.0, scale=0.8)
-    np.testing.assert_allclose(cell_cdf(EnduranceModel(1.0, 0.8), y), ref.cdf(y), rtol=1e-9, atol=1e-15)
+    np.testing.assert_allclose(cell_cdf(EnduranceModel(1.0, 0.8, "normal"), y), ref.cdf(y), rtol=1e-9, atol=1e-15)
     s = np.sqrt(np.log1p(0.25))
     ref = stats.lognorm(s=s, scale=1.0 / np.sqrt(1.25))
     np.testing.assert_allclose(cell_cdf(EnduranceModel(1.0, 0.5, "lognormal"), y), ref.cdf(y), rtol=1e-9)
+
+
+@pytest.mark.parametrize("dist", ["lognormal", "normal"])
+def test_weakest_cell_of_n_against_scipy(dist: str) -> None:
+    # The minimum of n i.i.d. cells has CDF 1 - (1 - F(x))^n (David and
+    # Nagaraja, Order Statistics, Wiley 2003); F from scipy.stats lognorm and
+    # truncnorm.  A line of n cells with ECP-0 dies at its weakest cell, so
+    # DeathLaw(k=0) must follow the same law, and so must the sampled minima.
+    m = EnduranceModel(1e8, 0.2, dist)
+    if dist == "lognormal":
+        s = np.sqrt(np.log1p(0.04))
+        ref = stats.lognorm(s=s, scale=1e8 / np.sqrt(1.04))
+    else:
+        ref = stats.truncnorm(a=-5.0, b=np.inf, loc=1e8, scale=2e7)
+    n = 512
+    x = np.linspace(2e7, 1e8, 50)
+    expected = -np.expm1(n * np.log1p(-ref.cdf(x)))       # 1 - (1 - F)^n, stable
+    law = DeathLaw(m, n, 0, 1.0)
+    np.testing.assert_allclose(law.cdf(x), expected, rtol=1e-6, atol=1e-12)
+    # Quantiles of the weakest of a whole device's cells (1.4e11): exact
+    # inversion of the same CDF.
+    big = 1.4e11
+    for u in (0.1, 0.5, 0.9):
+        w = float(m.weakest_of(big, u))
+        assert -np.expm1(big * np.log1p(-ref.cdf(w))) == pytest.approx(u, rel=1e-6)
+    # Sampled minima of n cells against the same law (Kolmogorov-Smirnov).
+    mins = m.sample(np.random.default_rng(3), (4000, n)).min(axis=1)
+    cdf_min = lambda v: -np.expm1(n * np.log1p(-ref.cdf(v)))  # noqa: E731
+    assert stats.kstest(mins, cdf_min).pvalue > 1e-3
+
+
+def test_lognormal_weakest_cell_is_physical() -> None:
+    # Mean 1e8, CoV 0.2 over 1.4e11 cells: the truncated normal's weakest
+    # cell is worn out by ~100 programs (Phi(-5) * 1.4e11 ~ 39,000 draws
+    # fall below zero before truncation), the lognormal's survives ~2.6e7
+    # (both from the closed forms via scipy.stats).
+    big = 1.4e11
+    ln = float(EnduranceModel(1e8, 0.2, "lognormal").weakest_of(big))
+    nm = float(EnduranceModel(1e8, 0.2, "normal").weakest_of(big))
+    assert stats.norm.cdf(-5.0) * big == pytest.approx(4.0e4, rel=0.05)
+    assert 2.0e7 < ln < 3.2e7
+    assert nm < 1e4
 
 
 def test_weakest_copies_match_brute_force() -> None:
@@ -379,3 +421,20 @@ def test_cli_writes_summary_tables_and_png(tmp_path: Path) -> None:
     assert (out / "wear.png").read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     p = memsim("lifetime", str(cfg), "--write-rate", "-1")
     assert p.returncode == 2 and p.stderr.count("\n") == 1 and "--write-rate" in p.stderr
+
+
+def test_even_wear_reads_one_under_perfectly_even_writes() -> None:
+    # A sequential sweep of full-line writes wears every line exactly alike,
+    # so lifetime against perfectly even wear of the same cells is 1 up to
+    # the sampling spread of the weakest device line (median of the order
+    # statistic, David and Nagaraja 2003); a uniform random stream over a
+    # short window is uneven and reads below 1.
+    base = dict(write_rate_gbps=1.0, method="extrapolated", workload__read_fraction=0.0,
+                workload__requests=4096 * 50, array__lines=4096, write__scheme="full_line")
+    even = [lifetime(None, workload__pattern="sequential", run__seed=s, **base).summary
+            for s in (1, 2)]
+    for s in even:
+        assert s["wear_max_over_mean"] == pytest.approx(1.0)
+        assert s["lifetime_vs_even_wear"] == pytest.approx(1.0, abs=0.05)
+    uneven = lifetime(None, workload__pattern="uniform", run__seed=1, **base).summary
+    assert uneven["lifetime_vs_even_wear"] < 0.9

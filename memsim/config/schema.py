@@ -60,7 +60,8 @@ class CellSection(Section):
     endurance_cov: float = Field(_SLC["endurance_cov"], ge=0, lt=1,
                                  description="Coefficient of variation of cell endurance.")
     endurance_dist: Literal["normal", "lognormal"] = Field(
-        "normal", description="Distribution of cell endurance.")
+        "lognormal", description="Distribution of cell endurance: lognormal (physically sensible "
+                                 "tail) or normal truncated at zero (tail far too heavy over 1e11 cells).")
     # Multi-level cells and drift (see memsim/tech/mlc.py, memsim/tech/drift.py).
     bits_per_cell: Literal[1, 2, 3] = Field(1, description="Bits stored per cell (1 = SLC).")
     level_log10_ohm: list[float] = Field(_SLC["level_log10_ohm"],
@@ -186,7 +187,8 @@ class LevelingSection(Section):
 class LifetimeSection(Section):
     method: Literal["extrapolated", "run_to_failure", "both"] = Field(
         "both", description="Lifetime method of memsim lifetime.")
-    ecp_entries: int = Field(0, ge=0, description="Failed cells a line survives (ECP correction entries).")
+    ecp_entries: int = Field(6, ge=0, description="Failed cells a line survives (ECP correction entries); "
+                                                 "6 = ECP-6, the usual baseline.")
     capacity_loss: float = Field(0.0, ge=0, lt=1,
                                  description="End of life at this share of lines dead; 0 = first dead line.")
     endurance_scale: float = Field(1e4, ge=1, description="Run to failure: endurance divided by this.")

@@ -98,16 +98,7 @@ _Q_STEP = 2e-3                     # relative step profiles are grouped by
 
 def cell_cdf(model: EnduranceModel, y: np.ndarray) -> np.ndarray:
     """CDF of one cell's endurance at ``y`` (inverse of ``model.ppf``)."""
-    y = np.asarray(y, dtype=np.float64)
-    if model.cov == 0:
-        return (y >= model.mean).astype(np.float64)
-    if model.dist == "lognormal":
-        s2 = np.log1p(model.cov**2)
-        with np.errstate(divide="ignore"):
-            return ndtr((np.log(np.maximum(y, 0.0)) - (np.log(model.mean) - s2 / 2)) / np.sqrt(s2))
-    sd = model.cov * model.mean
-    p0 = ndtr(-model.mean / sd)            # mass cut off below zero
-    return np.clip((ndtr((y - model.mean) / sd) - p0) / (1.0 - p0), 0.0, 1.0)
+    return model.cdf(y)
 
 
 def _binom_pmf(j: np.ndarray, n: int, p: np.ndarray) -> np.ndarray:
@@ -299,6 +290,26 @@ def _strata(law: DeathLaw, rng: np.random.Generator, n: int, copies: float, need
     return DeviceDeaths(law.ppf(u), weight, int(np.ceil(needed / weight)), False, first)
 
 
+def even_wear_writes(law: DeathLaw, rate: float, lines: float, needed: int) -> float:
+    """User writes to end of life if ``lines`` lines all wore at the mean ``rate``.
+
+    The same cells and the same programs per write, spread perfectly: every
+    line then wears at ``rate`` write equivalents per user write and end of
+    life is the ``needed``-th smallest death wear among ``lines`` i.i.d.
+    lines.  Its median, ``ppf(B^-1(1/2))`` with ``B`` the Beta(needed,
+    lines - needed + 1) law of the ``needed``-th smallest of ``lines``
+    uniforms (David and Nagaraja, *Order Statistics*, Wiley 2003), stands
+    for it.  Lifetime over this separates leveler quality (how unevenly the
+    writes fall) from cell variation (which both share).
+    """
+    if not rate > 0 or law.never_dies:
+        return float("inf")
+    n = max(float(lines), 1.0)
+    needed = int(min(max(needed, 1), n))
+    u = float(betaincinv(needed, n - needed + 1, 0.5))
+    return float(law.ppf(np.array([u]))[0]) / rate
+
+
 def _capacity_share(dd: DeviceDeaths) -> tuple[float, bool]:
     """``capacity_loss`` that makes the metrics functions stop at ``dd.needed``."""
     entries = dd.death.size
@@ -488,8 +499,19 @@ def _ideal_years(cfg: RunConfig, scale: DeviceScale, rate: float) -> float:
                            line_scale=scale.line_scale)
 
 
+def _even_writes(law: DeathLaw, line_wear: np.ndarray, user_writes: float, scale: DeviceScale,
+                 capacity_loss: float) -> float:
+    """:func:`even_wear_writes` for the device lines the modeled wear falls on."""
+    lines = line_wear.size * scale.copies
+    needed = int(np.floor(capacity_loss * scale.device_lines)) + 1
+    if needed > lines:
+        return float("inf")
+    return even_wear_writes(law, float(line_wear.mean()) / max(user_writes, 1), lines, needed)
+
+
 def _years_fields(prefix: str, life: Lifetime, scale: DeviceScale, line_bytes: int,
-                  rate: float, ideal_years: float, weight: float) -> dict[str, Any]:
+                  rate: float, ideal_years: float, weight: float,
+                  even_writes: float = float("nan")) -> dict[str, Any]:
     def years(w: float) -> float:
         if np.isnan(w):
             return float("nan")
@@ -501,6 +523,9 @@ def _years_fields(prefix: str, life: Lifetime, scale: DeviceScale, line_bytes: i
     y = years(life.end_writes)
     return {f"{prefix}_years": y, f"{prefix}_first_failure_years": years(life.first_failure_writes),
             f"{prefix}_vs_ideal": y / ideal_years if np.isfinite(ideal_years) else float("nan"),
+            f"{prefix}_vs_even_wear": (life.end_writes / even_writes
+                                       if np.isfinite(even_writes) and np.isfinite(life.end_writes)
+                                       else float("nan")),
             f"{prefix}_dead_lines": life.dead_lines * weight}
 
 
@@ -558,6 +583,7 @@ def lifetime_fields(cfg: RunConfig, path: WritePath, write_bytes_per_s: float) -
         "lifetime_first_failure_years": float("inf"),
         "lifetime_ideal_years": ideal_years,
         "lifetime_vs_ideal": float("nan"),
+        "lifetime_vs_even_wear": float("nan"),
         "leveling_write_overhead": (path.move_writes + path.meta_writes) / max(user, 1),
         "wear_max_over_mean": float(wear.max() / mean) if mean > 0 else 0.0,
         "wear_cov": float(wear.std() / mean) if mean > 0 else 0.0,
@@ -574,7 +600,8 @@ def lifetime_fields(cfg: RunConfig, path: WritePath, write_bytes_per_s: float) -
     result = WearResult(path.line_writes, np.zeros_like(path.line_writes), user, path.meta_writes,
                         np.zeros(1))
     life = extrapolate(result, dd)
-    f = _years_fields("lifetime", life, scale, cfg.array.line_bytes, rate, ideal_years, dd.weight)
+    even = _even_writes(law, wear, user, scale, cfg.lifetime.capacity_loss)
+    f = _years_fields("lifetime", life, scale, cfg.array.line_bytes, rate, ideal_years, dd.weight, even)
     f.pop("lifetime_dead_lines")
     out.update(f)
     return out
@@ -705,7 +732,8 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
                          "write_rate_source": source, "lifetime_traffic": scale.traffic,
                          "lifetime_line_scale": scale.line_scale, "device_lines": scale.device_lines,
                          "lifetime_ideal_years": ideal_years}
-    args = (scale, cfg.array.line_bytes, rate, ideal_years, dd.weight)
+    even = _even_writes(law, line_wear, wear.user_writes, scale, lt.capacity_loss)
+    args = (scale, cfg.array.line_bytes, rate, ideal_years, dd.weight, even)
     if method in ("both", "extrapolated"):
         a = extrapolate(wear, dd)
         s.update(_years_fields("lifetime", a, *args))

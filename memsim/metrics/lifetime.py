@@ -255,7 +255,7 @@ class LifetimeSetup:
     """
 
     endurance: EnduranceModel = field(default_factory=EnduranceModel)
-    ecp_entries: int = 0
+    ecp_entries: int = 6
     line_bits: int = 512
     line_bytes: int = 64
     cells: float | np.ndarray | None = None
