@@ -62,7 +62,7 @@ from scipy.special import betainc, betaincinv, expit, gammaln, ndtr, xlog1py, xl
 
 from memsim import __version__
 from memsim.config import RunConfig
-from memsim.engine.wear import WearResult, rotate_profile, run_wear
+from memsim.engine.wear import PoolLeveler, WearResult, rotate_profile, run_wear
 from memsim.errors import ConfigError
 from memsim.experiment.build import build_leveler, build_path
 from memsim.metrics.lifetime import (
@@ -73,7 +73,10 @@ from memsim.metrics.lifetime import (
     writes_to_years,
 )
 from memsim.metrics.result import RunResult
+from memsim.policy.erase import BlockPool
 from memsim.policy.leveling.base import Leveler
+from memsim.policy.write import SCHEMES
+from memsim.policy.write.bits import popcount_rows
 from memsim.policy.writepath import WritePath
 from memsim.tech.endurance import EnduranceModel
 from memsim.units import GIB
@@ -390,6 +393,17 @@ def rotated_profile(profile: float | np.ndarray, line_bits: int, leveler: Levele
     return q
 
 
+def _pool_write_cells(cfg: RunConfig, sample: WritePath) -> float:
+    """Cells an out-of-place write into an initialized line programs, on average.
+
+    Only the bits that differ from the initialized state: the 0 bits of
+    all-SET blocks, the 1 bits of all-RESET blocks (the sample pass's stored
+    lines give the data's share of 1 bits).
+    """
+    ones = float(popcount_rows(sample.stored).mean())
+    return sample.line_bits - ones if cfg.erase.init_state == "set" else ones
+
+
 def sample_profile(cfg: RunConfig, rng: np.random.Generator, writes: int) -> WritePath:
     """A short write-scheme pass: ``writes`` uniform writes over a few lines.
 
@@ -571,8 +585,14 @@ def lifetime_fields(cfg: RunConfig, path: WritePath, write_bytes_per_s: float) -
     rate, source = ((cfg.lifetime.write_rate_gbps * 1e9, "config")
                     if cfg.lifetime.write_rate_gbps > 0 else (float(write_bytes_per_s), "run"))
     lv = path.leveler
-    wear = path.line_writes.astype(np.float64)
     user = path.user_writes
+    # Wear from the ledger (every program, whatever issued it), in write
+    # equivalents: a line's cells divided by the cells one write programs.
+    profile = rotated_profile(path_profile(path), path.line_bits, lv) if path.line_writes.any() else 1.0
+    n_cells = profile_cells(path)
+    per_write = float(np.sum(np.broadcast_to(profile, (n_cells,))))
+    cells = path.ledger.line_cells()
+    wear = cells / per_write if per_write > 0 else np.zeros_like(cells)
     mean = float(wear.mean()) if wear.size else 0.0
     ideal_years = _ideal_years(cfg, scale, rate)
     out: dict[str, Any] = {
@@ -591,14 +611,13 @@ def lifetime_fields(cfg: RunConfig, path: WritePath, write_bytes_per_s: float) -
         "lifetime_window_line_writes_mean": mean,
         "lifetime_window_cycles": user / leveling_cycle_writes(lv),
     }
+    out.update(path.ledger.summary())
     if user == 0 or mean == 0:
         return out
-    profile = rotated_profile(path_profile(path), path.line_bits, lv)
-    law = DeathLaw(_endurance(cfg), profile_cells(path), cfg.lifetime.ecp_entries, profile)
+    law = DeathLaw(_endurance(cfg), n_cells, cfg.lifetime.ecp_entries, profile)
     rng = np.random.default_rng(_seeds(cfg.run.seed)["endurance"])
     dd = device_deaths(law, rng, wear / user, scale.copies, scale.device_lines, cfg.lifetime.capacity_loss)
-    result = WearResult(path.line_writes, np.zeros_like(path.line_writes), user, path.meta_writes,
-                        np.zeros(1))
+    result = WearResult(wear, np.zeros_like(wear), user, path.meta_writes, np.zeros(1))
     life = extrapolate(result, dd)
     even = _even_writes(law, wear, user, scale, cfg.lifetime.capacity_loss)
     f = _years_fields("lifetime", life, scale, cfg.array.line_bytes, rate, ideal_years, dd.weight, even)
@@ -717,13 +736,23 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
         return write_stream(cfg, seeds["stream"])
 
     def new_leveler() -> Leveler:
+        if SCHEMES[cfg.write.scheme].out_of_place:
+            e = cfg.erase
+            pool = BlockPool(cfg.footprint, e.block_lines, e.spare_fraction, e.init_state, e.victim,
+                             e.low_watermark, e.fallback)
+            return PoolLeveler(pool, cfg.array.line_bytes * 8)     # bulk init drives every data cell
         return build_leveler(cfg, np.random.default_rng(seeds["leveler"]))
 
     sample = sample_profile(cfg, np.random.default_rng(seeds["profile"]), min(window, _PROFILE_WRITES))
     lv = new_leveler()
-    wear = run_wear(stream(), lv, max_user_writes=window)
     profile = rotated_profile(path_profile(sample), sample.line_bits, lv)
-    law = DeathLaw(_endurance(cfg), profile_cells(sample), lt.ecp_entries, profile)
+    n_cells = profile_cells(sample)
+    # The ledger counts cells; the death law's write equivalent is one write of `profile`.
+    per_write = float(np.sum(np.broadcast_to(profile, (n_cells,))))
+    cells_per_write = _pool_write_cells(cfg, sample) if isinstance(lv, PoolLeveler) else per_write
+    counting = {"cells_per_write": cells_per_write, "wear_unit": per_write}
+    wear = run_wear(stream(), lv, max_user_writes=window, **counting)
+    law = DeathLaw(_endurance(cfg), n_cells, lt.ecp_entries, profile)
     dd = device_deaths(law, np.random.default_rng(seeds["endurance"]), wear.line_wear / wear.user_writes,
                        scale.copies, scale.device_lines, lt.capacity_loss)
     ideal_years = _ideal_years(cfg, scale, rate)
@@ -740,7 +769,7 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
     if method in ("both", "run_to_failure"):
         cl, reachable = _capacity_share(dd)
         b = lifetime_to_failure(stream, new_leveler(), dd.death, endurance_scale=lt.endurance_scale,
-                                capacity_loss=cl)
+                                capacity_loss=cl, **counting)
         if not reachable:
             b.end_writes, b.reached_end = float("inf"), False
         if not dd.exact:           # strata do not hold the weakest copies
@@ -762,7 +791,8 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
         "leveling_write_overhead": wear.leveling_write_overhead,
         "wear_max_over_mean": wear.wear_max_over_mean,
         "wear_cov": wear.wear_cov,
-        "lifetime_cells_per_write": float(np.sum(np.broadcast_to(profile, (law.cells,)))),
+        "lifetime_cells_per_write": per_write,
+        **wear.ledger.summary(),
         "lifetime_death_sampling": "exact" if dd.exact else "strata",
         "lifetime_window_writes": wear.user_writes,
         "lifetime_window_line_writes_mean": mean,
