@@ -80,7 +80,8 @@ def test_lifetime_fields_hand_case() -> None:
     # modeled line one device line.  Writes 0,0,0,1 repeated: line 0 takes 3
     # of every 4 user writes, so it dies after 1000 * 4 / 3 user writes;
     # at 64 B per write and 64 B/s that is 1333.3 s.  Hand arithmetic.
-    cfg = resolve(small(lines=16, cell={"endurance_mean": 1000.0}))
+    # The stream is deterministic (no counting noise): allow the short run.
+    cfg = resolve(small(lines=16, cell={"endurance_mean": 1000.0}, lifetime={"timing_max_noise": 1.0}))
     path = build_path(cfg, np.random.default_rng(0))
     for _ in range(50):
         path.apply(np.array([0, 0, 0, 1]))
@@ -90,7 +91,8 @@ def test_lifetime_fields_hand_case() -> None:
     assert f["wear_max_over_mean"] == pytest.approx(150 / (200 / 16))
     assert f["write_rate_source"] == "run"
     # The config's rate wins over the run's when it is set.
-    cfg2 = resolve(small(lines=16, cell={"endurance_mean": 1000.0}, lifetime={"write_rate_gbps": 1.0}))
+    cfg2 = resolve(small(lines=16, cell={"endurance_mean": 1000.0},
+                         lifetime={"write_rate_gbps": 1.0, "timing_max_noise": 1.0}))
     f2 = lifetime_fields(cfg2, path, 64.0)
     assert f2["write_rate_source"] == "config"
     assert f2["lifetime_years"] == pytest.approx(f["lifetime_years"] * 64 / 1e9)

@@ -195,6 +195,10 @@ class LifetimeSection(Section):
     write_rate_gbps: float = Field(0.0, ge=0, description="Write rate for years, GB/s; 0 = from the run.")
     window_writes: int = Field(0, ge=0, description="User writes the wear engine measures; 0 = "
                                                    "workload.requests.")
+    timing_max_noise: float = Field(0.1, gt=0, description="Timing runs: largest relative counting noise "
+                                                           "of the most-worn line, sqrt(2 ln lines / its "
+                                                           "writes), for which a lifetime is given; above "
+                                                           "it the lifetime keys are null.")
 
 
 class RefreshSection(Section):

@@ -546,6 +546,31 @@ def _years_fields(prefix: str, life: Lifetime, scale: DeviceScale, line_bytes: i
 # ---------------------------------------------------------------- timing runs
 
 
+_NULL_WHEN_SHORT = ("lifetime_years", "lifetime_first_failure_years", "lifetime_vs_ideal",
+                    "lifetime_vs_even_wear")
+
+
+def _too_short(wear: np.ndarray, cycles: float, max_noise: float) -> str:
+    """Why a timing run's wear cannot be extrapolated to a lifetime, or "".
+
+    Extrapolation takes each line's count as its rate.  The lines that end
+    life are the most worn ones, and the largest of P counts with mean ``c``
+    overshoots its rate by about ``sqrt(2 ln P / c)`` relative (the maximum of
+    P Gaussian deviations, common practice); and a leveler whose cycle the
+    run did not complete has not spread its writes yet.
+    """
+    top = float(wear.max())
+    noise = float(np.sqrt(2.0 * np.log(max(wear.size, 2)) / top)) if top > 0 else float("inf")
+    if noise > max_noise:
+        return (f"run too short for a lifetime: the most-worn line got {top:.3g} writes, counting noise "
+                f"~{noise:.0%} > lifetime.timing_max_noise {max_noise:g}; use memsim lifetime or more "
+                f"requests")
+    if np.isfinite(cycles) and cycles < 1:
+        return (f"run too short for a lifetime: it spans {cycles:.3g} of the leveler's cycle, so wear "
+                f"has not evened out; use memsim lifetime")
+    return ""
+
+
 def lifetime_fields(cfg: RunConfig, path: WritePath, write_bytes_per_s: float) -> dict[str, Any]:
     """Lifetime fields of a timing run, from its write path's wear counters.
 
@@ -573,13 +598,13 @@ def lifetime_fields(cfg: RunConfig, path: WritePath, write_bytes_per_s: float) -
     Notes
     -----
     The per-line rates are measured over the run only.  They are steady-state
-    rates only if every line received many writes (counting noise is about
-    ``1 / sqrt(lifetime_window_line_writes_mean)``; the hottest lines of a
-    short run look hotter than they are) and if the window spans the
+    rates only if the most-worn lines received many writes (their counting
+    noise is about ``sqrt(2 ln lines / writes)``) and if the window spans the
     leveler's cycle (``lifetime_window_cycles`` >= 1; Start-Gap over N lines
     needs ``N (N + 1) psi`` writes, far more than a timing run holds for
-    realistic N).  Otherwise the figure understates the lifetime; use
-    :func:`lifetime`, which runs the wear engine over a long window.
+    realistic N).  Otherwise the lifetime keys are null (None) and
+    ``lifetime_note`` says why; :func:`lifetime` runs the wear engine over a
+    long window.
     """
     scale = DeviceScale.of(cfg)
     rate, source = ((cfg.lifetime.write_rate_gbps * 1e9, "config")
@@ -612,7 +637,17 @@ def lifetime_fields(cfg: RunConfig, path: WritePath, write_bytes_per_s: float) -
         "lifetime_window_cycles": user / leveling_cycle_writes(lv),
     }
     out.update(path.ledger.summary())
+    out["lifetime_note"] = None
     if user == 0 or mean == 0:
+        for k in _NULL_WHEN_SHORT:
+            out[k] = None
+        out["lifetime_note"] = "no writes reached the memory in the run: no wear to extrapolate"
+        return out
+    note = _too_short(wear, out["lifetime_window_cycles"], cfg.lifetime.timing_max_noise)
+    if note:
+        for k in _NULL_WHEN_SHORT:
+            out[k] = None
+        out["lifetime_note"] = note
         return out
     law = DeathLaw(_endurance(cfg), n_cells, cfg.lifetime.ecp_entries, profile)
     rng = np.random.default_rng(_seeds(cfg.run.seed)["endurance"])

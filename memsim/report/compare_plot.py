@@ -60,7 +60,8 @@ def compare_figure(table: pd.DataFrame, metrics: Sequence[str] | None = None) ->
                                for i in rows], float)
             pos = np.arange(len(workloads)) + (j - (len(settings) - 1) / 2) * width
             err = np.where(np.isfinite(halves), halves, 0.0) if np.isfinite(halves).any() else None
-            bars = ax.bar(pos, np.nan_to_num(means, nan=0.0), width, color=colors[j], label=s,
+            # A run without a value (e.g. null lifetime: run too short) gets no bar, not a zero.
+            bars = ax.bar(pos, means, width, color=colors[j], label=s,
                           yerr=err, capsize=3 if err is not None else 0,
                           error_kw={"elinewidth": 1, "ecolor": "0.2"})
             if n == 0:
