@@ -51,7 +51,6 @@ from __future__ import annotations
 import time
 from collections.abc import Iterator, Mapping
 from dataclasses import dataclass
-from math import gcd
 from pathlib import Path
 from typing import Any
 
@@ -452,30 +451,9 @@ class DeviceScale:
 
 
 def leveling_cycle_writes(leveler: Leveler) -> float:
-    """User writes for the leveler to move every line once through its cycle (uniform traffic).
-
-    Start-Gap: a full Start rotation, ``N (N + 1) psi`` writes (Qureshi et al.,
-    MICRO 2009); region Start-Gap: the same per region; Security Refresh:
-    one key round of every region, ``regions * S * interval``; bit rotation:
-    a full turn of the offset (or the inner scheme's cycle if longer).
-    NaN when the scheme has no fixed cycle (none, hot/cold swap).
-    """
-    name = leveler.name
-    if name == "randomized_start_gap":
-        leveler = leveler.inner
-        name = leveler.name
-    if name == "start_gap":
-        n = leveler.n_logical
-        return float(n) * (n + 1) * leveler.psi
-    if name == "region_start_gap":
-        n_max = int(leveler.size.max())
-        return float(leveler.n_logical) * (n_max + 1) * leveler.psi
-    if name == "security_refresh":
-        return float(leveler.n_physical) * leveler.interval
-    if name == "bit_rotation":
-        turn = leveler.line_bits // gcd(leveler.step, leveler.line_bits) * leveler.interval
-        return float(np.nanmax([turn, leveling_cycle_writes(leveler.inner)]))
-    return float("nan")
+    """User writes for the leveler to move every line once through its cycle
+    (uniform traffic); each leveler reports its own (:meth:`Leveler.cycle_writes`)."""
+    return leveler.cycle_writes()
 
 
 def wear_tables(line_wear: np.ndarray, bins: int = 64) -> dict[str, pd.DataFrame]:

@@ -99,6 +99,12 @@ class Leveler:
         self.user_writes += logical.size
         return LevelResult(phys=logical.copy())
 
+    def cycle_writes(self) -> float:
+        """User writes for the scheme to move every line once through its cycle
+        under uniform traffic; NaN when it has no fixed cycle (none, dynamic
+        schemes)."""
+        return float("nan")
+
     def state(self) -> dict:
         """Small, JSON-friendly view of the scheme's registers."""
         return {"user_writes": self.user_writes, "move_writes": self.move_writes}
