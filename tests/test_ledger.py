@@ -71,9 +71,9 @@ def test_hint_preprogramming_shortens_lifetime_in_proportion() -> None:
     # ratio of total programs (extrapolated wear rates scale together).
     # Same seed, same lines: counting noise cancels in the ratio, so the
     # short runs may give a lifetime (timing_max_noise raised on purpose).
-    base = dict(array__lines=1024, workload__requests=40000, workload__read_fraction=0.5,
-                workload__interval_ns=40.0, lifetime__write_rate_gbps=1.0, run__seed=3,
-                lifetime__timing_max_noise=1.0)
+    base = {"array__lines": 1024, "workload__requests": 40000, "workload__read_fraction": 0.5,
+                "workload__interval_ns": 40.0, "lifetime__write_rate_gbps": 1.0, "run__seed": 3,
+                "lifetime__timing_max_noise": 1.0}
     a = simulate(None, **base).summary
     b = simulate(None, controller__hint_preset=True, workload__hint_lead_ns=3000.0, **base).summary
     assert b["wear_cells_preset"] > 0 and a["wear_cells_preset"] == 0
@@ -84,9 +84,9 @@ def test_hint_preprogramming_shortens_lifetime_in_proportion() -> None:
 
 
 def test_cancelled_programs_shorten_lifetime_at_high_load() -> None:
-    base = dict(array__lines=1024, workload__requests=40000, workload__read_fraction=0.7,
-                workload__interval_ns=25.0, lifetime__write_rate_gbps=1.0, run__seed=3,
-                controller__cancel_before=1.0, workload__data="random", lifetime__timing_max_noise=1.0)
+    base = {"array__lines": 1024, "workload__requests": 40000, "workload__read_fraction": 0.7,
+                "workload__interval_ns": 25.0, "lifetime__write_rate_gbps": 1.0, "run__seed": 3,
+                "controller__cancel_before": 1.0, "workload__data": "random", "lifetime__timing_max_noise": 1.0}
     on = simulate(None, controller__write_cancel=True, **base).summary
     off = simulate(None, **base).summary
     ratio = on["wear_cells_total"] / off["wear_cells_total"]
@@ -114,8 +114,8 @@ def test_block_erase_and_comparison_write_give_different_lifetimes() -> None:
     # out-of-place write into all-SET lines programs every 0 bit and the
     # pool's bulk initializations add a full line per erased line.  The
     # lifetimes must differ as their programs do.
-    kw = dict(write_rate_gbps=1.0, method="extrapolated", array__lines=2048, workload__read_fraction=0.0,
-              workload__data="zeros", lifetime__window_writes=60000)
+    kw = {"write_rate_gbps": 1.0, "method": "extrapolated", "array__lines": 2048, "workload__read_fraction": 0.0,
+              "workload__data": "zeros", "lifetime__window_writes": 60000}
     dcw = lifetime(None, write__scheme="data_comparison", **kw).summary
     be = lifetime(None, write__scheme="block_erase", **kw).summary
     assert dcw["wear_cells_erase"] == 0 and be["wear_cells_erase"] > 0

@@ -267,7 +267,7 @@ def test_weakest_cell_of_n_against_scipy(dist: str) -> None:
         assert -np.expm1(big * np.log1p(-ref.cdf(w))) == pytest.approx(u, rel=1e-6)
     # Sampled minima of n cells against the same law (Kolmogorov-Smirnov).
     mins = m.sample(np.random.default_rng(3), (4000, n)).min(axis=1)
-    cdf_min = lambda v: -np.expm1(n * np.log1p(-ref.cdf(v)))  # noqa: E731
+    cdf_min = lambda v: -np.expm1(n * np.log1p(-ref.cdf(v)))
     assert stats.kstest(mins, cdf_min).pvalue > 1e-3
 
 
@@ -431,8 +431,8 @@ def test_even_wear_reads_one_under_perfectly_even_writes() -> None:
     # the sampling spread of the weakest device line (median of the order
     # statistic, David and Nagaraja 2003); a uniform random stream over a
     # short window is uneven and reads below 1.
-    base = dict(write_rate_gbps=1.0, method="extrapolated", workload__read_fraction=0.0,
-                workload__requests=4096 * 50, array__lines=4096, write__scheme="full_line")
+    base = {"write_rate_gbps": 1.0, "method": "extrapolated", "workload__read_fraction": 0.0,
+                "workload__requests": 4096 * 50, "array__lines": 4096, "write__scheme": "full_line"}
     even = [lifetime(None, workload__pattern="sequential", run__seed=s, **base).summary
             for s in (1, 2)]
     for s in even:

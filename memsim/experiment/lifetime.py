@@ -57,7 +57,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 from scipy import stats
-from scipy.special import betainc, betaincinv, expit, gammaln, ndtr, xlog1py, xlogy
+from scipy.special import betainc, betaincinv, expit, gammaln, xlog1py, xlogy
 
 from memsim import __version__
 from memsim.config import RunConfig
