@@ -1,0 +1,118 @@
+"""Start-Gap at device size: closed forms, scale invariance, direct replay."""
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from scipy.optimize import brentq
+
+from memsim.engine.device_wear import start_gap_device_lifetime, start_gap_device_wear
+from memsim.experiment.lifetime import lifetime
+
+GIB = 2**30
+
+
+def _hot_top(n: int, h: int, f: float) -> np.ndarray:
+    """Shares of ``n`` modeled lines: the top ``h`` take ``f`` of the writes, the rest even."""
+    r = np.full(n, (1 - f) / (n - h))
+    r[n - h:] = f / h
+    return r
+
+
+@pytest.mark.parametrize("lines", [1024, 16384])
+@pytest.mark.parametrize("psi", [4, 100])
+def test_start_gap_uniform_is_psi_over_psi_plus_one(lines: int, psi: int) -> None:
+    # Uniform full-line writes, no endurance variation: every line takes the
+    # user writes and one gap move per psi writes, so lifetime is psi/(psi+1)
+    # of ideal (Qureshi et al., MICRO 2009), at device size and whatever
+    # array.lines is.
+    s = lifetime(None, write_rate_gbps=1.0, method="extrapolated", array__lines=lines,
+                 array__capacity_gib=1.0, workload__pattern="sequential", workload__read_fraction=0.0,
+                 write__scheme="full_line", leveling__scheme="start_gap", leveling__psi=psi,
+                 cell__endurance_cov=0.0, lifetime__window_writes=lines * 4).summary
+    assert s["lifetime_leveling_scale"] == "device"
+    assert s["lifetime_vs_ideal"] == pytest.approx(psi / (psi + 1), rel=1e-6)
+
+
+def test_contiguous_hot_region_closed_form() -> None:
+    # Derived here.  D device lines, gap cycle G = (D + 1) psi device writes;
+    # after W writes Start has advanced K = W / G lines.  A contiguous hot
+    # region of H device lines taking share f: while K <= H the top hot line
+    # hosts only hot lines, wear W f / H; after that its window holds all H
+    # hot lines (G f) plus K - H cold ones at c = (1 - f) / (D - H) each.
+    # Each full rotation of Start (K past D) adds G (all shares, sum 1).
+    # Every line also takes one gap move per cycle, W / G.  (The region sits
+    # at the top of the space, where the gap passes last, so the first
+    # cycle's phase is ~0.)  Lifetime: wear = E.
+    def closed_form(n: int, h: int, f: float, s_copies: int, psi: int, e: float) -> float:
+        d = n * s_copies
+        big_h = h * s_copies
+        g = (d + 1.0) * psi
+        c = (1 - f) / (d - big_h)
+
+        def wear(w: float) -> float:
+            full, x = divmod(w / g, d)
+            part = x * f / big_h if x <= big_h else f + (x - big_h) * c
+            return g * (full + part) + w / g
+
+        return brentq(lambda w: wear(w) - e, 1.0, 1e30, xtol=1.0, rtol=1e-12)
+
+    # A 16 GiB device of 64 B lines (65536 modeled x 4096) with a 1 MiB hot
+    # region, and a small device where Start rotates several times.
+    for n, h, s_copies, psi in ((65536, 4, 4096, 100), (4096, 4, 64, 100), (4096, 8, 16, 4)):
+        f, e = 0.5, 1e8
+        death = np.full((n, 1), e)
+        end, first = start_gap_device_lifetime(_hot_top(n, h, f), death, 1.0, 1, psi, s_copies)
+        assert end == pytest.approx(closed_form(n, h, f, s_copies, psi, e), rel=1e-3)
+        assert first == end
+    # At 16 GiB Start cannot move across the region in the device's life:
+    # the hot lines die at ~E H / f writes, far below even wear (E D).
+    n, h, s_copies = 65536, 4, 4096
+    end = start_gap_device_lifetime(_hot_top(n, h, 0.5), np.full((n, 1), 1e8), 1.0, 1, 100, s_copies)[0]
+    assert end == pytest.approx(1e8 * h * s_copies / 0.5, rel=1e-3)
+    assert end < 1e-3 * 1e8 * n * s_copies
+
+
+def test_scale_invariance_of_a_region_fixed_in_device_lines() -> None:
+    # The same device (2**20 lines) and the same hot region (4096 adjacent
+    # device lines, half the writes), modeled with 1024 or 16384 lines: the
+    # device-scale Start-Gap lifetime must not change (no outside source:
+    # the invariance DESIGN.md asks for).
+    d, big_h, f, psi, e = 1 << 20, 4096, 0.5, 100, 1e8
+    ends = []
+    for n in (1024, 16384):
+        s_copies = d // n
+        r = _hot_top(n, big_h // s_copies, f)
+        ends.append(start_gap_device_lifetime(r, np.full((n, 1), e), 1.0, 1, psi, s_copies)[0])
+    assert ends[1] == pytest.approx(ends[0], rel=0.05)
+    # And uniform traffic: identical.
+    u = [start_gap_device_lifetime(np.full(n, 1 / n), np.full((n, 1), e), 1.0, 1, psi, d // n)[0]
+         for n in (1024, 16384)]
+    assert u[1] == pytest.approx(u[0], rel=1e-9)
+
+
+def test_wear_is_continuous_and_increasing_in_writes() -> None:
+    r = _hot_top(512, 3, 0.4)
+    w = np.geomspace(1e3, 1e12, 200)
+    worn = np.array([start_gap_device_wear(r, x, 50, 8).max() for x in w])
+    assert np.all(np.diff(worn) >= 0)
+
+
+@pytest.mark.parametrize(("pattern", "psi", "extra"), [
+    ("uniform", 20, {}),
+    ("hotspot", 20, {"workload__hot_fraction": 0.05, "workload__hot_share": 0.5}),
+    ("hotspot", 100, {"workload__hot_fraction": 0.05, "workload__hot_share": 0.5}),
+    ("zipf", 20, {}),
+])
+def test_device_scale_agrees_with_direct_replay_on_a_small_device(pattern, psi, extra) -> None:
+    # One modeled line per device line and endurance low enough to replay
+    # every write to failure with the real leveler (no endurance scaling):
+    # the device-scale evaluation must agree within 3%.
+    s = lifetime(None, write_rate_gbps=1.0, method="both", array__lines=512,
+                 array__capacity_gib=512 * 64 / GIB, workload__pattern=pattern, workload__read_fraction=0.0,
+                 write__scheme="full_line", leveling__scheme="start_gap", leveling__psi=psi,
+                 cell__endurance_cov=0.1, cell__endurance_mean=1e4, lifetime__ecp_entries=0,
+                 lifetime__capacity_loss=0.03, lifetime__endurance_scale=1.0,
+                 lifetime__window_writes=512 * 2000, **extra).summary
+    assert s["lifetime_leveling_scale"] == "device"
+    assert s["lifetime_replay_reached_end"]
+    assert s["lifetime_replay_over_extrapolated"] == pytest.approx(1.0, abs=0.03)
