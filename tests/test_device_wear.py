@@ -116,3 +116,29 @@ def test_device_scale_agrees_with_direct_replay_on_a_small_device(pattern, psi, 
     assert s["lifetime_leveling_scale"] == "device"
     assert s["lifetime_replay_reached_end"]
     assert s["lifetime_replay_over_extrapolated"] == pytest.approx(1.0, abs=0.03)
+
+
+@pytest.mark.parametrize("leveler", ["none", "start_gap"])
+@pytest.mark.parametrize("hot", [False, True])
+def test_lifetime_does_not_depend_on_modeled_lines(leveler: str, hot: bool) -> None:
+    # A 16 GiB device; uniform traffic, or a contiguous hot region of 1/64 of
+    # the device taking half the writes (fixed in device terms because its
+    # share of the footprint is).  16x more modeled lines: within 5%
+    # (DESIGN.md: a result must not change with array.lines).
+    extra = ({"workload__pattern": "hotspot", "workload__hot_fraction": 1 / 64, "workload__hot_share": 0.5,
+              "workload__hot_layout": "contiguous"} if hot else {"workload__pattern": "uniform"})
+    years = [lifetime(None, write_rate_gbps=1.0, method="extrapolated", array__lines=n,
+                      workload__read_fraction=0.0, leveling__scheme=leveler,
+                      lifetime__window_writes=n * 400, **extra).summary["lifetime_years"]
+             for n in (1024, 16384)]
+    assert years[1] == pytest.approx(years[0], rel=0.05)
+
+
+def test_contiguous_layout_puts_the_hot_lines_in_one_run() -> None:
+    from memsim.workload.synthetic import AddressPattern
+
+    p = AddressPattern("hotspot", 1000, np.random.default_rng(0), hot_fraction=0.05,
+                       hot_layout="contiguous")
+    run = np.sort(p.hot_lines[:p.n_hot])
+    assert np.all(np.diff(run) == 1) and run.size == 50
+    assert np.array_equal(np.sort(p.hot_lines), np.arange(1000))

@@ -152,6 +152,9 @@ class WorkloadSection(Section):
     zipf_exponent: float = Field(1.0, gt=0, description="Zipf exponent s (pattern zipf).")
     hot_fraction: float = Field(0.1, gt=0, lt=1, description="Share of footprint that is hot.")
     hot_share: float = Field(0.9, gt=0, lt=1, description="Share of accesses that go to hot lines.")
+    hot_layout: Literal["scattered", "contiguous"] = Field(
+        "scattered", description="Where hot lines sit (hotspot, zipf): scattered over the footprint, or "
+                                 "one run of adjacent lines (zipf: rank k on line k).")
     stride_lines: int = Field(1, ge=1, description="Stride in lines (pattern strided).")
     arrival: Literal["poisson", "fixed", "onoff", "closed"] = Field(
         "poisson", description="Arrival process; closed = a fixed number outstanding.")

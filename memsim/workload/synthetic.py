@@ -29,7 +29,9 @@ class AddressPattern:
     def __init__(self, kind: str, footprint: int, rng: np.random.Generator, *,
                  zipf_exponent: float = 1.0, hot_fraction: float = 0.1,
                  hot_share: float = 0.9, stride_lines: int = 1, attack_line: int = 0,
-                 burst: int = 1000, hot_lines: int = 16) -> None:
+                 burst: int = 1000, hot_lines: int = 16, hot_layout: str = "scattered") -> None:
+        if hot_layout not in ("scattered", "contiguous"):
+            raise ConfigError("workload.hot_layout", repr(hot_layout), "scattered, contiguous")
         self.kind = kind
         self.footprint = footprint
         self.pos = 0
@@ -40,11 +42,20 @@ class AddressPattern:
             w = ranks ** -zipf_exponent
             self.cdf = np.cumsum(w / w.sum())
             # Hot ranks are scattered over the footprint, not packed in one
-            # bank (common practice for Zipf address streams).
-            self.rank_to_line = rng.permutation(footprint)
+            # bank (common practice for Zipf address streams); contiguous:
+            # rank k on line k, the hottest lines adjacent.
+            self.rank_to_line = (rng.permutation(footprint) if hot_layout == "scattered"
+                                 else np.arange(footprint))
         elif kind == "hotspot":
             self.n_hot = max(1, int(round(hot_fraction * footprint)))
             self.hot_lines = rng.permutation(footprint)
+            if hot_layout == "contiguous":
+                # One run of adjacent lines (what plain Start-Gap cannot
+                # move across quickly), at a random place.
+                lo = int(rng.integers(0, footprint - self.n_hot + 1))
+                run = np.arange(lo, lo + self.n_hot)
+                rest = self.hot_lines[(self.hot_lines < lo) | (self.hot_lines >= lo + self.n_hot)]
+                self.hot_lines = np.concatenate([run, rest])
         elif kind == "repeated_address":
             if not 0 <= attack_line < footprint:
                 raise ConfigError("workload.attack_line", repr(attack_line),
@@ -156,7 +167,8 @@ class SyntheticSource:
         self.address = address or AddressPattern(
             wl.pattern, footprint, rng, zipf_exponent=wl.zipf_exponent,
             hot_fraction=wl.hot_fraction, hot_share=wl.hot_share, stride_lines=wl.stride_lines,
-            attack_line=wl.attack_line, burst=wl.burst, hot_lines=wl.hot_lines)
+            attack_line=wl.attack_line, burst=wl.burst, hot_lines=wl.hot_lines,
+            hot_layout=wl.hot_layout)
         self.arrivals = Arrivals(wl.arrival, wl.interval_ns, wl.on_ns, wl.off_ns)
         self.footprint = footprint
 
