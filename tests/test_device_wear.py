@@ -142,3 +142,18 @@ def test_contiguous_layout_puts_the_hot_lines_in_one_run() -> None:
     run = np.sort(p.hot_lines[:p.n_hot])
     assert np.all(np.diff(run) == 1) and run.size == 50
     assert np.array_equal(np.sort(p.hot_lines), np.arange(1000))
+
+
+@pytest.mark.parametrize("kind", ["uniform", "zipf", "hotspot", "strided", "sequential"])
+def test_expected_shares_match_drawn_addresses(kind: str) -> None:
+    # The shares the device-scale evaluation uses, against the generator's
+    # own draws: every line within 5 binomial standard deviations.
+    from memsim.workload.synthetic import AddressPattern
+
+    p = AddressPattern(kind, 1000, np.random.default_rng(0), hot_fraction=0.05, stride_lines=8,
+                       hot_layout="contiguous")
+    s = p.expected_shares()
+    n = 1_000_000
+    c = np.bincount(p.draw(np.random.default_rng(1), n), minlength=1000) / n
+    assert s.sum() == pytest.approx(1.0)
+    assert np.all(np.abs(c - s) <= 5 * np.sqrt(s * (1 - s) / n) + 1e-12)

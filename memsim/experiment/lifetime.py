@@ -660,16 +660,24 @@ def lifetime_fields(cfg: RunConfig, path: WritePath, write_bytes_per_s: float) -
 
 
 def _start_gap_at_device(cfg: RunConfig, lv: Leveler, law: DeathLaw, chunks: Iterator[np.ndarray],
-                         window: int, scale: DeviceScale, seed: np.random.SeedSequence) -> Lifetime:
+                         window: int, scale: DeviceScale, seed: np.random.SeedSequence,
+                         stream_seed: np.random.SeedSequence) -> Lifetime:
     """Estimate (a) for plain Start-Gap evaluated at device size (:mod:`memsim.engine.device_wear`).
 
-    The workload's share of writes per logical line is counted over the
-    window (lines outside the footprint get none: the device's Start-Gap
-    spans every line of the device).
+    The workload's share of writes per logical line is the synthetic
+    pattern's expected share (no sampling noise), or for a trace counted
+    over the window; lines outside the footprint get none (the device's
+    Start-Gap spans every line of the device).
     """
-    counts = run_wear(chunks, Leveler(cfg.footprint), max_user_writes=window)
+    shares = None
+    if cfg.workload.pattern != "trace":
+        wl = cfg.workload.model_copy(update={"arrival": "closed", "requests": 1 << 62})
+        shares = SyntheticSource(wl, cfg.footprint, np.random.default_rng(stream_seed)).expected_write_shares()
+    if shares is None:
+        counts = run_wear(chunks, Leveler(cfg.footprint), max_user_writes=window)
+        shares = counts.user_line_writes / max(counts.user_writes, 1)
     rates = np.zeros(cfg.array.lines)
-    rates[: cfg.footprint] = counts.user_line_writes / max(counts.user_writes, 1)
+    rates[: cfg.footprint] = shares
     dd = device_deaths(law, np.random.default_rng(seed), rates, scale.copies, scale.device_lines,
                        cfg.lifetime.capacity_loss)
     needed = dd.needed if dd.exact else dd.needed
@@ -820,7 +828,8 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
     s["lifetime_leveling_scale"] = "device" if device_scale else "modeled"
     if method in ("both", "extrapolated"):
         if device_scale:
-            a = _start_gap_at_device(cfg, lv, law, stream(), window, scale, seeds["endurance"])
+            a = _start_gap_at_device(cfg, lv, law, stream(), window, scale, seeds["endurance"],
+                                     seeds["stream"])
         else:
             a = extrapolate(wear, dd)
         s.update(_years_fields("lifetime", a, *args))

@@ -8,6 +8,7 @@ read share) so tests can compare sampled moments with them.
 from __future__ import annotations
 
 from collections.abc import Callable, Iterator
+from math import gcd
 
 import numpy as np
 
@@ -92,6 +93,34 @@ class AddressPattern:
         self.pos = int((self.pos + step * n) % f)
         return out
 
+    def expected_shares(self) -> np.ndarray | None:
+        """Long-run share of accesses of every footprint line (sums to 1).
+
+        None for the attack patterns (their lines are drawn as they go).
+        """
+        f = self.footprint
+        if self.kind in ("uniform", "sequential"):
+            return np.full(f, 1.0 / f)
+        if self.kind == "zipf":
+            out = np.zeros(f)
+            out[self.rank_to_line] = np.diff(self.cdf, prepend=0.0)
+            return out / out.sum()
+        if self.kind == "hotspot":
+            out = np.zeros(f)
+            cold = self.hot_lines[self.n_hot:]
+            out[self.hot_lines[:self.n_hot]] = self.hot_share / self.n_hot
+            if cold.size:
+                out[cold] = (1.0 - self.hot_share) / cold.size
+            else:
+                out[self.hot_lines[f - 1]] += 1.0 - self.hot_share
+            return out
+        if self.kind == "strided":
+            g = gcd(self.stride, f)
+            out = np.zeros(f)
+            out[::g] = g / f
+            return out
+        return None
+
     def _attack(self, rng: np.random.Generator, n: int) -> np.ndarray:
         f = self.footprint
         if self.kind == "repeated_address":
@@ -174,6 +203,18 @@ class SyntheticSource:
 
     def expected_read_fraction(self) -> float:
         return self.wl.read_fraction
+
+    def expected_write_shares(self) -> np.ndarray | None:
+        """Long-run share of writes of every footprint line (None for attacks).
+
+        Reads and writes are drawn from the same addresses; a request of
+        ``size_lines`` lines also writes the lines after its first.
+        """
+        s = self.address.expected_shares()
+        if s is None:
+            return None
+        k = self.wl.size_lines
+        return sum(np.roll(s, j) for j in range(k)) / k if k > 1 else s
 
     def __iter__(self) -> Iterator[Chunk]:
         lead = getattr(self.wl, "hint_lead_ns", 0.0)
