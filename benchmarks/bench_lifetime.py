@@ -32,6 +32,9 @@ def study(capacity_gib: float, lines: int, window: int) -> float:
             s = lifetime(None, write_rate_gbps=1.0, method="extrapolated", overrides={
                 "array.capacity_gib": capacity_gib, "array.lines": lines, "leveling.scheme": lev,
                 "workload.read_fraction": 0.0, "lifetime.window_writes": window, **wl}).summary
+            if s["lifetime_years"] is None:       # no estimate: say why
+                print(f"{lev:22s} {name:9s} {'null':>10s} {'':9s} {'':8s}  {s['lifetime_note'][:60]}")
+                continue
             print(f"{lev:22s} {name:9s} {s['lifetime_years']:10.4g} {s['lifetime_vs_ideal']:9.3g} "
                   f"{s['lifetime_vs_even_wear']:8.3g}  {s['lifetime_leveling_scale']}")
     wall = time.perf_counter() - t0

@@ -131,3 +131,72 @@ def _solve(rates: np.ndarray, death: np.ndarray, needed: int, psi: int, copies: 
         if hi - lo <= 1e-10 * hi:
             break
     return hi
+
+
+def randomized_start_gap_device_lifetime(rates: np.ndarray, death_cdf, needed: int, psi: int,
+                                         copies: float, max_skew: float = 0.1) -> float:
+    """Device writes to end of life under randomized Start-Gap at device size.
+
+    Approximation (the static randomizer is a keyed permutation of all
+    ``D`` device lines, too many to evaluate one by one): after ``K`` gap
+    cycles a physical line has hosted ``K`` device lines drawn without
+    replacement from the whole device, each for one cycle ``G``.  Its user
+    wear is ``G`` times the sum of their rates, taken as normal with the
+    mean and variance of sampling ``K`` of the ``D`` device rates (finite
+    population correction; each full rotation, ``K >= D``, adds exactly
+    ``G``), plus ``K`` gap moves.  End of life is where the expected number
+    of dead device lines, ``D E[F(wear)]`` (``F`` the line death law,
+    Gauss-Hermite quadrature over the normal), reaches ``needed - 1 +
+    ln 2`` (the median of a Poisson count).  Its error against a replay to
+    failure of the real leveler is measured in tests/test_device_wear.py.
+
+    The normal law is trusted only where the skewness of the window sum,
+    ``gamma_1 (1 - 2 f) / sqrt(K (1 - f))`` (``gamma_1`` that of one device
+    line's rate, ``f = K / D``), is below ``max_skew``; otherwise NaN is returned (no estimate): few hot
+    lines per window make the sum skewed, and a normal law would understate
+    its upper tail, so the lifetime would come out too long.
+    """
+    r = np.asarray(rates, dtype=np.float64)
+    n = r.size
+    d = n * float(copies)
+    g = (d + 1.0) * psi
+    v = r / copies                                   # rate of each device line of block i
+    mu = 1.0 / d
+    var = max(float(np.mean(v * v)) - mu * mu, 0.0)
+    z, wz = np.polynomial.hermite_e.hermegauss(96)
+    wz = wz / np.sqrt(2.0 * np.pi)
+    target = needed - 1.0 + np.log(2.0)
+
+    def expected_dead(w: float) -> float:
+        k = w / g
+        full = np.floor(k / d)
+        x = k - full * d
+        mean = g * (full + x * mu) + k
+        sd = g * np.sqrt(x * var * max(0.0, 1.0 - x / d))
+        wear = np.maximum(mean + sd * z, 0.0)
+        return d * float(np.dot(wz, death_cdf(wear)))
+
+    lo, hi = 0.0, d
+    while expected_dead(hi) < target:
+        hi *= 2.0
+        if hi > 1e40:
+            return float("inf")
+    for _ in range(200):
+        mid = 0.5 * (lo + hi) if lo == 0.0 else float(np.sqrt(lo * hi))
+        if expected_dead(mid) >= target:
+            hi = mid
+        else:
+            lo = mid
+        if hi - lo <= 1e-10 * hi:
+            break
+    k = hi / g
+    x = k - np.floor(k / d) * d
+    if var > 0 and 0 < x < d:
+        # Skewness of a sum of x draws without replacement from d values:
+        # gamma_1 (1 - 2 f) / sqrt(x (1 - f)), f = x / d (from the third
+        # central moment of sampling without replacement; derived here).
+        f = x / d
+        skew = float(np.mean((v - mu) ** 3)) / var**1.5 * (1 - 2 * f) / np.sqrt(x * (1 - f))
+        if abs(skew) > max_skew:
+            return float("nan")
+    return hi

@@ -38,10 +38,13 @@ device line under the device's own Start and Gap registers is summed
 exactly; lifetime is found by bisection on the device writes (cost O(lines)
 per step, independent of the device size).  With one modeled line per device
 line it agrees with a replay to failure of the real leveler within 3%
-(tests/test_device_wear.py).  ``lifetime_leveling_scale`` says which way a
-run went: ``device`` (plain Start-Gap, spread traffic) or ``modeled`` (the
-other levelers and the attack patterns, still evaluated on the modeled lines
-and as optimistic as above when their cycle is short in modeled terms).
+(tests/test_device_wear.py).  Randomized Start-Gap is evaluated at device
+size by a normal approximation of each line's window sum (null where the
+sum is too skewed for it; its error against a replay is measured in the
+same tests).  ``lifetime_leveling_scale`` says which way a run went:
+``device`` (plain and randomized Start-Gap, spread traffic) or ``modeled``
+(the other levelers and the attack patterns, still evaluated on the modeled
+lines, whose cycle is too short in device terms).
 
 The ideal lifetime is perfect leveling of full-line writes over the whole
 device, ``endurance_mean * capacity / write_rate``; schemes that program
@@ -77,7 +80,7 @@ from scipy.special import betainc, betaincinv, expit, gammaln, xlog1py, xlogy
 
 from memsim import __version__
 from memsim.config import RunConfig
-from memsim.engine.device_wear import start_gap_device_lifetime
+from memsim.engine.device_wear import randomized_start_gap_device_lifetime, start_gap_device_lifetime
 from memsim.engine.wear import PoolLeveler, WearResult, rotate_profile, run_wear
 from memsim.errors import ConfigError
 from memsim.experiment.build import build_leveler, build_path
@@ -690,6 +693,36 @@ def _start_gap_at_device(cfg: RunConfig, lv: Leveler, law: DeathLaw, chunks: Ite
                     int(scale.device_lines))
 
 
+def _device_rates(cfg: RunConfig, chunks: Iterator[np.ndarray], window: int,
+                  stream_seed: np.random.SeedSequence) -> np.ndarray:
+    """Share of writes of every modeled logical line (expected, or counted for a trace)."""
+    shares = None
+    if cfg.workload.pattern != "trace":
+        wl = cfg.workload.model_copy(update={"arrival": "closed", "requests": 1 << 62})
+        shares = SyntheticSource(wl, cfg.footprint, np.random.default_rng(stream_seed)).expected_write_shares()
+    if shares is None:
+        counts = run_wear(chunks, Leveler(cfg.footprint), max_user_writes=window)
+        shares = counts.user_line_writes / max(counts.user_writes, 1)
+    rates = np.zeros(cfg.array.lines)
+    rates[: cfg.footprint] = shares
+    return rates
+
+
+def _randomized_start_gap_at_device(cfg: RunConfig, lv: Leveler, law: DeathLaw,
+                                    chunks: Iterator[np.ndarray], window: int, scale: DeviceScale,
+                                    stream_seed: np.random.SeedSequence) -> Lifetime:
+    """Estimate (a) for randomized Start-Gap at device size (an approximation,
+    :func:`memsim.engine.device_wear.randomized_start_gap_device_lifetime`)."""
+    rates = _device_rates(cfg, chunks, window, stream_seed)
+    needed = int(np.floor(cfg.lifetime.capacity_loss * scale.device_lines)) + 1
+    psi = lv.inner.psi
+    end = randomized_start_gap_device_lifetime(rates, law.cdf, needed, psi, scale.copies)
+    first = end if needed == 1 else randomized_start_gap_device_lifetime(rates, law.cdf, 1, psi, scale.copies)
+    t = scale.time_scale
+    return Lifetime("device_scale", end / t, first / t, needed if np.isfinite(end) else 0,
+                    int(scale.device_lines))
+
+
 def write_stream(cfg: RunConfig, seed: np.random.SeedSequence,
                  chunk: int = _STREAM_CHUNK) -> Iterator[np.ndarray]:
     """Endless logical line indices of the workload's writes, in order.
@@ -824,15 +857,23 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
                          "lifetime_ideal_years": ideal_years}
     even = _even_writes(law, line_wear, wear.user_writes, scale, lt.capacity_loss)
     args = (scale, cfg.array.line_bytes, rate, ideal_years, dd.weight, even)
-    device_scale = lv.name == "start_gap" and scale.traffic == "spread"
+    device_scale = lv.name in ("start_gap", "randomized_start_gap") and scale.traffic == "spread"
     s["lifetime_leveling_scale"] = "device" if device_scale else "modeled"
     if method in ("both", "extrapolated"):
-        if device_scale:
+        if device_scale and lv.name == "randomized_start_gap":
+            a = _randomized_start_gap_at_device(cfg, lv, law, stream(), window, scale, seeds["stream"])
+        elif device_scale:
             a = _start_gap_at_device(cfg, lv, law, stream(), window, scale, seeds["endurance"],
                                      seeds["stream"])
         else:
             a = extrapolate(wear, dd)
         s.update(_years_fields("lifetime", a, *args))
+        if np.isnan(a.end_writes):
+            for k in ("lifetime_years", "lifetime_first_failure_years", "lifetime_vs_ideal",
+                      "lifetime_vs_even_wear"):
+                s[k] = None
+            s["lifetime_note"] = ("no device-scale estimate: too few hot lines per Start-Gap window for the "
+                                  "normal approximation of randomized Start-Gap (see memsim.engine.device_wear)")
     if method in ("both", "run_to_failure"):
         cl, reachable = _capacity_share(dd)
         b = lifetime_to_failure(stream, new_leveler(), dd.death, endurance_scale=lt.endurance_scale,
@@ -852,7 +893,7 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
         s["lifetime_replay_cycles"] = b.end_writes / lt.endurance_scale / leveling_cycle_writes(lv)
         if method == "both":
             s["lifetime_replay_over_extrapolated"] = (
-                rep["lifetime_replay_years"] / s["lifetime_years"] if s["lifetime_years"] > 0 else float("nan"))
+                rep["lifetime_replay_years"] / s["lifetime_years"] if (s["lifetime_years"] or 0) > 0 else None)
     mean = float(line_wear.mean())
     s.update({
         "leveling_write_overhead": wear.leveling_write_overhead,
