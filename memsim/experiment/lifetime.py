@@ -683,7 +683,7 @@ def _start_gap_at_device(cfg: RunConfig, lv: Leveler, law: DeathLaw, chunks: Ite
     rates[: cfg.footprint] = shares
     dd = device_deaths(law, np.random.default_rng(seed), rates, scale.copies, scale.device_lines,
                        cfg.lifetime.capacity_loss)
-    needed = dd.needed if dd.exact else dd.needed
+    needed = dd.needed
     end, first = start_gap_device_lifetime(rates, dd.death, dd.weight, needed, lv.psi, scale.copies)
     if not dd.exact:
         first = start_gap_device_lifetime(rates, dd.first[:, None], 1.0, 1, lv.psi, scale.copies)[1]
@@ -862,6 +862,10 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
     if method in ("both", "extrapolated"):
         if device_scale and lv.name == "randomized_start_gap":
             a = _randomized_start_gap_at_device(cfg, lv, law, stream(), window, scale, seeds["stream"])
+            if np.isnan(a.end_writes) and scale.copies == 1:
+                # One modeled line per device line: the modeled leveler is the device.
+                a = extrapolate(wear, dd)
+                s["lifetime_leveling_scale"] = "modeled"
         elif device_scale:
             a = _start_gap_at_device(cfg, lv, law, stream(), window, scale, seeds["endurance"],
                                      seeds["stream"])
