@@ -271,6 +271,11 @@ class PoolLeveler(Leveler):
     def lookup(self, logical: np.ndarray) -> np.ndarray:
         return self.pool.l2p()[np.asarray(logical, dtype=np.int64)]
 
+    def scale_free(self) -> bool:
+        # Cleaning depends on the spare share and block size, not on how many
+        # blocks there are (many-blocks limit, policy/erase.py).
+        return True
+
     def apply(self, logical: np.ndarray) -> LevelResult:
         r = self.pool.apply_instant(logical)
         B = self.pool.block_lines

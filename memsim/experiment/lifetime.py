@@ -859,6 +859,15 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
     args = (scale, cfg.array.line_bytes, rate, ideal_years, dd.weight, even)
     device_scale = lv.name in ("start_gap", "randomized_start_gap") and scale.traffic == "spread"
     s["lifetime_leveling_scale"] = "device" if device_scale else "modeled"
+    if not device_scale and not lv.scale_free() and scale.traffic == "spread" and scale.copies > 1:
+        # The leveler ran on the modeled lines: its cycle is far shorter than
+        # on the device, so its figure would look better than the device's.
+        s.update({k: None for k in ("lifetime_years", "lifetime_first_failure_years", "lifetime_vs_ideal",
+                                    "lifetime_vs_even_wear")})
+        s["lifetime_note"] = (f"no estimate: {lv.name} is evaluated on the modeled lines only, whose cycle is "
+                              f"{scale.copies:.0f}x shorter than the device's; set array.lines to the device's "
+                              f"line count ({scale.device_lines:.0f}) for a direct evaluation")
+        method = "none"
     if method in ("both", "extrapolated"):
         if device_scale and lv.name == "randomized_start_gap":
             a = _randomized_start_gap_at_device(cfg, lv, law, stream(), window, scale, seeds["stream"])
