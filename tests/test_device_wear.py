@@ -227,3 +227,37 @@ def test_randomized_lifetime_does_not_depend_on_modeled_lines(hot: bool) -> None
                       lifetime__window_writes=n * 20, **extra).summary["lifetime_years"]
              for n in (1024, 16384)]
     assert years[1] == pytest.approx(years[0], rel=0.05)
+
+
+@pytest.mark.parametrize(("extra", "interval"), [
+    ({"workload__pattern": "uniform"}, 4), ({"workload__pattern": "uniform"}, 20), (HOT, 2), (HOT, 4)])
+def test_security_refresh_steady_state_against_direct_replay(extra, interval) -> None:
+    # Steady state over many key rounds (Seong et al., ISCA 2010: every
+    # line of a region visits every physical line) against replaying every
+    # write to failure with the real leveler: within 3%.
+    kw = {**SMALL, "leveling__scheme": "security_refresh", "leveling__interval": interval}
+    s = lifetime(None, **kw, **extra).summary
+    assert s["lifetime_leveling_scale"] == "device"
+    assert s["lifetime_replay_over_extrapolated"] == pytest.approx(1.0, abs=0.03)
+
+
+@pytest.mark.parametrize("pattern", ["uniform", "zipf", "hot"])
+def test_security_refresh_lifetime_does_not_depend_on_modeled_lines(pattern: str) -> None:
+    extra = ({"workload__pattern": "hotspot", "workload__hot_fraction": 1 / 64, "workload__hot_share": 0.5,
+              "workload__hot_layout": "contiguous"} if pattern == "hot" else {"workload__pattern": pattern})
+    years = [lifetime(None, write_rate_gbps=1.0, method="extrapolated", array__lines=n,
+                      workload__read_fraction=0.0, leveling__scheme="security_refresh",
+                      lifetime__window_writes=n * 20, **extra).summary["lifetime_years"]
+             for n in (1024, 16384)]
+    assert years[1] == pytest.approx(years[0], rel=0.05)
+
+
+def test_security_refresh_round_load_closed_form() -> None:
+    from memsim.engine.device_wear import security_refresh_device_rates, security_refresh_round_load
+
+    # Two regions of 4 blocks; block 0 takes 0.4, the rest 0.6 evenly.
+    r = np.array([0.4, 0.1, 0.1, 0.1, 0.075, 0.075, 0.075, 0.075])
+    steady = security_refresh_device_rates(r, 4, 10)
+    np.testing.assert_allclose(steady, np.r_[[0.7 / 4] * 4, [0.3 / 4] * 4] * 1.1)
+    # Hottest line: r_i * blocks * interval / phi = 0.4 * 4 * 10 / 0.7.
+    assert security_refresh_round_load(r, 4, 10) == pytest.approx(0.4 * 4 * 10 / 0.7)

@@ -200,3 +200,43 @@ def randomized_start_gap_device_lifetime(rates: np.ndarray, death_cdf, needed: i
         if abs(skew) > max_skew:
             return float("nan")
     return hi
+
+
+def security_refresh_device_rates(rates: np.ndarray, region_blocks: int, interval: int) -> np.ndarray:
+    """Steady-state wear rate of each modeled block's device lines under Security Refresh.
+
+    A region of ``region_blocks`` modeled lines (``region_blocks * S``
+    device lines; by default the whole device) re-keys its XOR map every
+    round, ``region lines * interval`` region writes; over the many rounds
+    of a device's life (``endurance / interval``, ~1e6) every logical line
+    of a region visits every physical line alike, so each physical line of
+    the region wears at the region's mean share, plus the swaps, about
+    ``1 / interval`` line writes per user write (Seong et al., ISCA 2010;
+    the overhead as counted by :mod:`memsim.policy.leveling.security_refresh`).
+    :func:`security_refresh_round_load` says when one round is too long
+    for that to hold.
+    """
+    r = np.asarray(rates, dtype=np.float64)
+    n = r.size
+    b = max(1, min(int(region_blocks), n))
+    g = np.arange(n) // b
+    mean = np.bincount(g, weights=r) / np.bincount(g)
+    return mean[g] * (1.0 + 1.0 / interval)
+
+
+def security_refresh_round_load(rates: np.ndarray, region_blocks: int, interval: int) -> float:
+    """Largest write count one device line can take from one logical line in one round.
+
+    A round is ``R * interval`` writes to the region (``R`` device lines);
+    the hottest device line of a region takes ``r_i / S`` of device writes,
+    the region ``phi`` of them, so within a round it receives
+    ``r_i * region_blocks * interval / phi`` writes, all on one physical line.
+    """
+    r = np.asarray(rates, dtype=np.float64)
+    n = r.size
+    b = max(1, min(int(region_blocks), n))
+    g = np.arange(n) // b
+    phi = np.bincount(g, weights=r)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        load = np.where(phi[g] > 0, r * b * interval / phi[g], 0.0)
+    return float(load.max())

@@ -41,10 +41,12 @@ line it agrees with a replay to failure of the real leveler within 3%
 (tests/test_device_wear.py).  Randomized Start-Gap is evaluated at device
 size by a normal approximation of each line's window sum (null where the
 sum is too skewed for it; its error against a replay is measured in the
-same tests).  ``lifetime_leveling_scale`` says which way a run went:
-``device`` (plain and randomized Start-Gap, spread traffic) or ``modeled``
-(the other levelers and the attack patterns, still evaluated on the modeled
-lines, whose cycle is too short in device terms).
+same tests), Security Refresh by its steady state over many key rounds.
+``lifetime_leveling_scale`` says which way a run went: ``device`` (these
+three, spread traffic) or ``modeled`` (the attack patterns; none and
+bit rotation, which do not depend on the line count; region Start-Gap and
+hot/cold swap, which then give no estimate when a modeled line stands for
+more than one device line).
 
 The ideal lifetime is perfect leveling of full-line writes over the whole
 device, ``endurance_mean * capacity / write_rate``; schemes that program
@@ -80,7 +82,12 @@ from scipy.special import betainc, betaincinv, expit, gammaln, xlog1py, xlogy
 
 from memsim import __version__
 from memsim.config import RunConfig
-from memsim.engine.device_wear import randomized_start_gap_device_lifetime, start_gap_device_lifetime
+from memsim.engine.device_wear import (
+    randomized_start_gap_device_lifetime,
+    security_refresh_device_rates,
+    security_refresh_round_load,
+    start_gap_device_lifetime,
+)
 from memsim.engine.wear import PoolLeveler, WearResult, rotate_profile, run_wear
 from memsim.errors import ConfigError
 from memsim.experiment.build import build_leveler, build_path
@@ -708,6 +715,27 @@ def _device_rates(cfg: RunConfig, chunks: Iterator[np.ndarray], window: int,
     return rates
 
 
+def _security_refresh_at_device(cfg: RunConfig, lv: Leveler, law: DeathLaw, chunks: Iterator[np.ndarray],
+                                window: int, scale: DeviceScale, seeds: dict) -> Lifetime:
+    """Estimate (a) for Security Refresh at device size (steady state over many key rounds).
+
+    NaN (no estimate) when one round can put more than 1% of the weakest
+    line's death wear on one physical line: then the steady state does not
+    hold before the first death.
+    """
+    rates = _device_rates(cfg, chunks, window, seeds["stream"])
+    blocks = min(lv.region_lines, cfg.array.lines)
+    steady = security_refresh_device_rates(rates, blocks, lv.interval)
+    dd = device_deaths(law, np.random.default_rng(seeds["endurance"]), steady, scale.copies,
+                       scale.device_lines, cfg.lifetime.capacity_loss)
+    if security_refresh_round_load(rates, blocks, lv.interval) > 0.01 * float(dd.first.min()):
+        nan = float("nan")
+        return Lifetime("device_scale", nan, nan, 0, int(scale.device_lines))
+    life = extrapolate(WearResult(steady, np.zeros_like(steady), 1, 0, np.zeros(1)), dd)
+    life.method = "device_scale"
+    return life
+
+
 def _randomized_start_gap_at_device(cfg: RunConfig, lv: Leveler, law: DeathLaw,
                                     chunks: Iterator[np.ndarray], window: int, scale: DeviceScale,
                                     stream_seed: np.random.SeedSequence) -> Lifetime:
@@ -857,7 +885,8 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
                          "lifetime_ideal_years": ideal_years}
     even = _even_writes(law, line_wear, wear.user_writes, scale, lt.capacity_loss)
     args = (scale, cfg.array.line_bytes, rate, ideal_years, dd.weight, even)
-    device_scale = lv.name in ("start_gap", "randomized_start_gap") and scale.traffic == "spread"
+    device_scale = (lv.name in ("start_gap", "randomized_start_gap", "security_refresh")
+                    and scale.traffic == "spread")
     s["lifetime_leveling_scale"] = "device" if device_scale else "modeled"
     if not device_scale and not lv.scale_free() and scale.traffic == "spread" and scale.copies > 1:
         # The leveler ran on the modeled lines: its cycle is far shorter than
@@ -869,7 +898,12 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
                               f"line count ({scale.device_lines:.0f}) for a direct evaluation")
         method = "none"
     if method in ("both", "extrapolated"):
-        if device_scale and lv.name == "randomized_start_gap":
+        if device_scale and lv.name == "security_refresh":
+            a = _security_refresh_at_device(cfg, lv, law, stream(), window, scale, seeds)
+            if np.isnan(a.end_writes) and scale.copies == 1:
+                a = extrapolate(wear, dd)       # the modeled leveler is the device
+                s["lifetime_leveling_scale"] = "modeled"
+        elif device_scale and lv.name == "randomized_start_gap":
             a = _randomized_start_gap_at_device(cfg, lv, law, stream(), window, scale, seeds["stream"])
             if np.isnan(a.end_writes) and scale.copies == 1:
                 # One modeled line per device line: the modeled leveler is the device.
@@ -885,8 +919,8 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
             for k in ("lifetime_years", "lifetime_first_failure_years", "lifetime_vs_ideal",
                       "lifetime_vs_even_wear"):
                 s[k] = None
-            s["lifetime_note"] = ("no device-scale estimate: too few hot lines per Start-Gap window for the "
-                                  "normal approximation of randomized Start-Gap (see memsim.engine.device_wear)")
+            s["lifetime_note"] = (f"no device-scale estimate for {lv.name}: its device-scale approximation "
+                                  f"does not hold for this traffic (see memsim.engine.device_wear)")
     if method in ("both", "run_to_failure"):
         cl, reachable = _capacity_share(dd)
         b = lifetime_to_failure(stream, new_leveler(), dd.death, endurance_scale=lt.endurance_scale,
