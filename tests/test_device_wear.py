@@ -261,3 +261,24 @@ def test_security_refresh_round_load_closed_form() -> None:
     np.testing.assert_allclose(steady, np.r_[[0.7 / 4] * 4, [0.3 / 4] * 4] * 1.1)
     # Hottest line: r_i * blocks * interval / phi = 0.4 * 4 * 10 / 0.7.
     assert security_refresh_round_load(r, 4, 10) == pytest.approx(0.4 * 4 * 10 / 0.7)
+
+
+@pytest.mark.parametrize("extra", [{"workload__pattern": "uniform"}, HOT])
+def test_region_start_gap_against_direct_replay(extra) -> None:
+    # Each region a Start-Gap of its own at device size; first death against
+    # a replay of every write with the real leveler: within 3%.
+    kw = {**SMALL, "leveling__scheme": "region_start_gap", "leveling__psi": 20, "lifetime__capacity_loss": 0.0}
+    s = lifetime(None, **kw, **extra).summary
+    assert s["lifetime_leveling_scale"] == "device"
+    assert s["lifetime_replay_over_extrapolated"] == pytest.approx(1.0, abs=0.03)
+
+
+@pytest.mark.parametrize("hot", [False, True])
+def test_region_start_gap_lifetime_does_not_depend_on_modeled_lines(hot: bool) -> None:
+    extra = ({"workload__pattern": "hotspot", "workload__hot_fraction": 1 / 64, "workload__hot_share": 0.5,
+              "workload__hot_layout": "contiguous"} if hot else {"workload__pattern": "uniform"})
+    years = [lifetime(None, write_rate_gbps=1.0, method="extrapolated", array__lines=n,
+                      workload__read_fraction=0.0, leveling__scheme="region_start_gap",
+                      lifetime__window_writes=n * 20, **extra).summary["lifetime_years"]
+             for n in (1024, 16384)]
+    assert years[1] == pytest.approx(years[0], rel=0.05)

@@ -240,3 +240,28 @@ def security_refresh_round_load(rates: np.ndarray, region_blocks: int, interval:
     with np.errstate(divide="ignore", invalid="ignore"):
         load = np.where(phi[g] > 0, r * b * interval / phi[g], 0.0)
     return float(load.max())
+
+
+def region_start_gap_device_lifetime(rates: np.ndarray, sizes: np.ndarray, death: np.ndarray, psi: int,
+                                     copies: float) -> float:
+    """Device writes to the first dead line under region Start-Gap (no randomizer).
+
+    Region ``g`` holds ``sizes[g]`` adjacent modeled lines (``sizes[g] S``
+    device lines) and is its own Start-Gap, its gap moving every ``psi``
+    writes *to the region*: with the region's share ``phi_g`` of writes it
+    is :func:`start_gap_device_lifetime` on the region's shares
+    ``r / phi_g``, in region writes, i.e. ``W_g / phi_g`` device writes.
+    The device dies with its first region.  ``death`` as for
+    :func:`start_gap_device_lifetime` (first column: each block's weakest
+    device line).
+    """
+    r = np.asarray(rates, dtype=np.float64)
+    bounds = np.concatenate([[0], np.cumsum(sizes)])
+    best = float("inf")
+    for lo, hi in zip(bounds[:-1], bounds[1:]):
+        phi = float(r[lo:hi].sum())
+        if phi <= 0:
+            continue
+        w = _solve(r[lo:hi] / phi, np.asarray(death)[lo:hi, :1], 1, psi, copies)
+        best = min(best, w / phi)
+    return best

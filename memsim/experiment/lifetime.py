@@ -84,6 +84,7 @@ from memsim import __version__
 from memsim.config import RunConfig
 from memsim.engine.device_wear import (
     randomized_start_gap_device_lifetime,
+    region_start_gap_device_lifetime,
     security_refresh_device_rates,
     security_refresh_round_load,
     start_gap_device_lifetime,
@@ -885,7 +886,8 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
                          "lifetime_ideal_years": ideal_years}
     even = _even_writes(law, line_wear, wear.user_writes, scale, lt.capacity_loss)
     args = (scale, cfg.array.line_bytes, rate, ideal_years, dd.weight, even)
-    device_scale = (lv.name in ("start_gap", "randomized_start_gap", "security_refresh")
+    device_scale = ((lv.name in ("start_gap", "randomized_start_gap", "security_refresh")
+                     or (lv.name == "region_start_gap" and lv.perm is None and lt.capacity_loss == 0))
                     and scale.traffic == "spread")
     s["lifetime_leveling_scale"] = "device" if device_scale else "modeled"
     if not device_scale and not lv.scale_free() and scale.traffic == "spread" and scale.copies > 1:
@@ -898,7 +900,16 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
                               f"line count ({scale.device_lines:.0f}) for a direct evaluation")
         method = "none"
     if method in ("both", "extrapolated"):
-        if device_scale and lv.name == "security_refresh":
+        if device_scale and lv.name == "region_start_gap":
+            rates = _device_rates(cfg, stream(), window, seeds["stream"])
+            rd = device_deaths(law, np.random.default_rng(seeds["endurance"]), rates, scale.copies,
+                               scale.device_lines, 0.0)
+            q, rem = divmod(cfg.array.lines, lv.regions)     # the device's regions span every line
+            sizes = np.where(np.arange(lv.regions) < rem, q + 1, q)
+            w = region_start_gap_device_lifetime(rates, sizes, rd.first[:, None], lv.psi, scale.copies)
+            t = scale.time_scale
+            a = Lifetime("device_scale", w / t, w / t, 1 if np.isfinite(w) else 0, int(scale.device_lines))
+        elif device_scale and lv.name == "security_refresh":
             a = _security_refresh_at_device(cfg, lv, law, stream(), window, scale, seeds)
             if np.isnan(a.end_writes) and scale.copies == 1:
                 a = extrapolate(wear, dd)       # the modeled leveler is the device
