@@ -36,6 +36,8 @@ cycle, the write overhead ``1 / psi``).
 """
 from __future__ import annotations
 
+from itertools import pairwise
+
 import numpy as np
 
 
@@ -258,7 +260,7 @@ def region_start_gap_device_lifetime(rates: np.ndarray, sizes: np.ndarray, death
     r = np.asarray(rates, dtype=np.float64)
     bounds = np.concatenate([[0], np.cumsum(sizes)])
     best = float("inf")
-    for lo, hi in zip(bounds[:-1], bounds[1:]):
+    for lo, hi in pairwise(bounds.tolist()):
         phi = float(r[lo:hi].sum())
         if phi <= 0:
             continue
