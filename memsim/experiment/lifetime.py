@@ -886,7 +886,7 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
                          "lifetime_ideal_years": ideal_years}
     even = _even_writes(law, line_wear, wear.user_writes, scale, lt.capacity_loss)
     args = (scale, cfg.array.line_bytes, rate, ideal_years, dd.weight, even)
-    device_scale = ((lv.name in ("start_gap", "randomized_start_gap", "security_refresh")
+    device_scale = ((lv.name in ("none", "start_gap", "randomized_start_gap", "security_refresh")
                      or (lv.name == "region_start_gap" and lv.perm is None and lt.capacity_loss == 0))
                     and scale.traffic == "spread")
     s["lifetime_leveling_scale"] = "device" if device_scale else "modeled"
@@ -900,7 +900,14 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
                               f"line count ({scale.device_lines:.0f}) for a direct evaluation")
         method = "none"
     if method in ("both", "extrapolated"):
-        if device_scale and lv.name == "region_start_gap":
+        if device_scale and lv.name == "none":
+            # No remapping: each line wears at its own expected share (no window noise).
+            rates = _device_rates(cfg, stream(), window, seeds["stream"])
+            nd = device_deaths(law, np.random.default_rng(seeds["endurance"]), rates, scale.copies,
+                               scale.device_lines, lt.capacity_loss)
+            a = extrapolate(WearResult(rates, np.zeros_like(rates), 1, 0, np.zeros(1)), nd)
+            a.method = "device_scale"
+        elif device_scale and lv.name == "region_start_gap":
             rates = _device_rates(cfg, stream(), window, seeds["stream"])
             rd = device_deaths(law, np.random.default_rng(seeds["endurance"]), rates, scale.copies,
                                scale.device_lines, 0.0)
