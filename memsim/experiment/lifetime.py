@@ -650,6 +650,9 @@ def lifetime_fields(cfg: RunConfig, path: WritePath, write_bytes_per_s: float) -
         out["lifetime_note"] = "no writes reached the memory in the run: no wear to extrapolate"
         return out
     note = _too_short(wear, out["lifetime_window_cycles"], cfg.lifetime.timing_max_noise)
+    if not note and not lv.scale_free() and scale.traffic == "spread" and scale.copies > 1:
+        note = (f"no lifetime from a timing run with {lv.name}: it remaps the modeled lines only, a cycle "
+                f"{scale.copies:.0f}x shorter than the device's; use memsim lifetime")
     if note:
         for k in _NULL_WHEN_SHORT:
             out[k] = None
