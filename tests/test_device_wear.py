@@ -282,3 +282,14 @@ def test_region_start_gap_lifetime_does_not_depend_on_modeled_lines(hot: bool) -
                       lifetime__window_writes=n * 20, **extra).summary["lifetime_years"]
              for n in (1024, 16384)]
     assert years[1] == pytest.approx(years[0], rel=0.05)
+
+
+def test_no_replay_of_a_remapping_leveler_on_fewer_lines_than_the_device() -> None:
+    s = lifetime(None, write_rate_gbps=1.0, method="both", array__lines=1024, workload__read_fraction=0.0,
+                 leveling__scheme="start_gap", lifetime__window_writes=20_000).summary
+    assert "lifetime_replay_years" not in s and "no replay" in s["lifetime_replay_note"]
+    assert s["lifetime_years"] > 0
+    r = lifetime(None, write_rate_gbps=1.0, method="run_to_failure", array__lines=1024,
+                 workload__read_fraction=0.0, leveling__scheme="start_gap",
+                 lifetime__window_writes=20_000).summary
+    assert r["lifetime_years"] is None and "no replay" in r["lifetime_note"]

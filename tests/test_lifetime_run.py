@@ -193,8 +193,11 @@ def test_extrapolated_and_replay_agree(case: str) -> None:
         extra = {"workload": {"pattern": "zipf", "zipf_exponent": 0.6}, "lifetime": {"ecp_entries": 2}}
         scale, e_mean = 16, 1e8
     n = 128
+    # With 16 device lines per modeled line a remapping leveler is not
+    # replayed (its modeled cycle would be 16x too short): no leveling there.
+    lev = {"scheme": "randomized_start_gap", "psi": 10} if scale == 1 else {"scheme": "none"}
     cfg = small(lines=n, scale=scale, cell={"endurance_cov": 0.2, "endurance_mean": e_mean},
-                leveling={"scheme": "randomized_start_gap", "psi": 10}, **extra)
+                leveling=lev, **extra)
     cfg["lifetime"].update({"endurance_scale": e_mean / 2e4, "window_writes": 2_000_000})
     s = lifetime(cfg, write_rate_gbps=1.0, method="both").summary
     assert s["lifetime_replay_reached_end"]

@@ -942,6 +942,18 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
                 s[k] = None
             s["lifetime_note"] = (f"no device-scale estimate for {lv.name}: its device-scale approximation "
                                   f"does not hold for this traffic (see memsim.engine.device_wear)")
+    replay_ok = lv.scale_free() or scale.copies == 1 or scale.traffic != "spread"
+    if method in ("both", "run_to_failure") and not replay_ok:
+        # The replay runs the leveler on the modeled lines: a cycle far too
+        # short in device terms, so its figure would mislead.
+        s["lifetime_replay_note"] = (f"no replay: {lv.name} would run on {cfg.array.lines} modeled lines standing "
+                                     f"for {scale.device_lines:.0f} device lines; set array.lines to the "
+                                     f"device's line count to replay it")
+        if method == "run_to_failure":
+            s.update({k: None for k in ("lifetime_years", "lifetime_first_failure_years", "lifetime_vs_ideal",
+                                        "lifetime_vs_even_wear")})
+            s["lifetime_note"] = s["lifetime_replay_note"]
+        method = "extrapolated" if method == "both" else "none"
     if method in ("both", "run_to_failure"):
         cl, reachable = _capacity_share(dd)
         b = lifetime_to_failure(stream, new_leveler(), dd.death, endurance_scale=lt.endurance_scale,
