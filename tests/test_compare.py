@@ -252,3 +252,16 @@ def test_installed_command_bad_vary_exit_2(tmp_path):
                        env={**os.environ, "PYTHONPATH": str(ROOT)})
     assert p.returncode == 2 and p.stdout == ""
     assert len(p.stderr.strip().splitlines()) == 1 and "Traceback" not in p.stderr
+
+
+def test_rows_without_a_lifetime_estimate_are_left_out():
+    # A setting whose runs are too short for a lifetime gets no value (NaN in
+    # the table, no bar in the figure), never a zero; the other keeps its value.
+    t = compare(None, {"workload.requests": [400, 60000]}, workers=1,
+                fixed={"array.lines": 64, "workload.read_fraction": 0.0},
+                metrics=["lifetime_years", "throughput_gbps"])
+    short, long_ = t["lifetime_years"].tolist()
+    assert np.isnan(short) and long_ > 0
+    fig = compare_figure(t, ["lifetime_years"])
+    heights = [p.get_height() for p in fig.axes[0].patches]
+    assert sum(np.isfinite(heights)) == 1 and not any(h == 0 for h in heights)

@@ -20,11 +20,13 @@ from memsim.engine.fast import FastEngine, make_engine, unsupported
 from memsim.engine.stream import LatencyStream
 from memsim.engine.timing import TimingEngine
 from memsim.experiment.build import build_path, build_source
+from memsim.experiment.run import resolve
 from memsim.policy.refresh import plan_refresh
 
 
 def _run(cls, ov):
-    cfg = load_config(None, {**ov, "run.keep_requests": True})
+    # resolve: the same checks as a real run, so the generator cannot test a config a user cannot run.
+    cfg = resolve(None, {**ov, "run.keep_requests": True})
     rng = np.random.default_rng(cfg.run.seed)
     path = build_path(cfg, rng)
     plan = plan_refresh(cfg)
@@ -95,8 +97,12 @@ def _consistent(ov):
     ov["controller.drain_high"] = min(ov["controller.drain_high"], ov["controller.write_queue"])
     ov["controller.drain_low"] = min(ov["controller.drain_low"], ov["controller.drain_high"] - 1)
     if ov["cell.preset"] != "pcm_slc":
-        # Pausing stops between SLC programming rounds; program-and-verify writes refuse it.
+        # Pausing stops between SLC programming rounds; program-and-verify writes refuse it,
+        # and hint pre-programming models SLC.
         ov["controller.write_pause"] = False
+        ov["controller.hint_preset"] = False
+    if ov["leveling.scheme"] != "none":
+        ov["controller.hint_preset"] = False     # leveler moves would undo a pre-programmed line
     return ov
 
 

@@ -199,7 +199,8 @@ class CellSection(Section):
     endurance_cov: float = Field(_SLC["endurance_cov"], ge=0, lt=1,
                                  description="Coefficient of variation of cell endurance.")
     endurance_dist: Literal["normal", "lognormal"] = Field(
-        "normal", description="Distribution of cell endurance.")
+        "lognormal", description="Distribution of cell endurance: lognormal (physically sensible "
+                                 "tail) or normal truncated at zero (tail far too heavy over 1e11 cells).")
     # Multi-level cells and drift (see memsim/tech/mlc.py, memsim/tech/drift.py).
     bits_per_cell: Annotated[Literal[1, 2, 3], WholeChoice] = Field(1, description="Bits stored per cell (1 = SLC).")
     tri_level: bool = Field(False, description="Tri-level cells: three levels per cell, two cells per "
@@ -310,6 +311,9 @@ class WorkloadSection(Section):
     zipf_exponent: float = Field(1.0, gt=0, description="Zipf exponent s (pattern zipf).")
     hot_fraction: float = Field(0.1, gt=0, lt=1, description="Share of footprint that is hot.")
     hot_share: float = Field(0.9, gt=0, lt=1, description="Share of accesses that go to hot lines.")
+    hot_layout: Literal["scattered", "contiguous"] = Field(
+        "scattered", description="Where hot lines sit (hotspot, zipf): scattered over the footprint, or "
+                                 "one run of adjacent lines (zipf: rank k on line k).")
     stride_lines: int = Field(1, ge=1, description="Stride in lines (pattern strided).")
     arrival: Literal["poisson", "fixed", "onoff", "closed"] = Field(
         "poisson", description="Arrival process; closed = a fixed number outstanding.")
@@ -345,7 +349,8 @@ class LevelingSection(Section):
 class LifetimeSection(Section):
     method: Literal["extrapolated", "run_to_failure", "both"] = Field(
         "both", description="Lifetime method of memsim lifetime.")
-    ecp_entries: int = Field(0, ge=0, description="Failed cells a line survives (ECP correction entries).")
+    ecp_entries: int = Field(6, ge=0, description="Failed cells a line survives (ECP correction entries); "
+                                                 "6 = ECP-6, the usual baseline.")
     capacity_loss: float = Field(0.0, ge=0, lt=1,
                                  description="End of life at this share of lines dead; 0 = first dead line.")
     endurance_scale: float = Field(1e4, ge=1, description="Run to failure: endurance divided by this.")
@@ -353,6 +358,10 @@ class LifetimeSection(Section):
     window_writes: int = Field(0, ge=0, le=MAX_WINDOW_WRITES,
                                description="User writes the wear engine measures (at most 1e10); 0 = "
                                            "workload.requests.")
+    timing_max_noise: float = Field(0.1, gt=0, le=10.0, description="Timing runs: largest relative counting noise "
+                                                           "of the most-worn line, sqrt(2 ln lines / its "
+                                                           "writes), for which a lifetime is given; above "
+                                                           "it the lifetime keys are null.")
 
 
 class RefreshSection(Section):

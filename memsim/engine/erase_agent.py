@@ -23,6 +23,7 @@ from __future__ import annotations
 import numpy as np
 
 from memsim.policy.erase import IN_PLACE, OUT_OF_PLACE, WAIT, BlockPool
+from memsim.policy.ledger import WearLedger
 from memsim.policy.write.bits import popcount_rows
 
 
@@ -59,6 +60,9 @@ class EraseAgent:
         self.erase_ua = min(per, cells) * ua
         self.erase_cells = cells
         self.line_writes = [np.zeros(p.n_physical, dtype=np.int64) for p in self.pools]
+        # The ledger's lines are the pools' physical lines, bank after bank.
+        self.base = np.cumsum([0] + [p.n_physical for p in self.pools])[:-1].tolist()
+        engine.path.ledger = WearLedger(sum(p.n_physical for p in self.pools))
         self.erases = 0
         self.jobs: list[dict | None] = [None] * nb     # cleaning job in progress per bank
         self.energy_pj = 0.0
@@ -83,6 +87,15 @@ class EraseAgent:
         if mode != WAIT:
             self.line_writes[b][phys] += 1
         return phys, mode
+
+    def where(self, logical: np.ndarray) -> np.ndarray:
+        """Ledger line (pool physical line, bank after bank) now holding each logical line."""
+        logical = np.asarray(logical, dtype=np.int64)
+        _, bank, _ = self.engine.amap.locate(logical)
+        out = np.empty(logical.size, dtype=np.int64)
+        for i, (lg, b) in enumerate(zip(logical.tolist(), bank.tolist())):
+            out[i] = self.base[b] + self.pools[b]._l2p[int(self.local[lg])]
+        return out
 
     # ------------------------------------------------------------ cleaning
     def wants_idle_clean(self, b: int) -> bool:
@@ -157,6 +170,7 @@ class EraseAgent:
             self.move_writes += len(job.src)
             self.move_cells += int((n_set + n_reset).sum())
             np.add.at(self.line_writes[b], np.asarray(job.dst), 1)
+            eng.path.ledger.add("erase", self.base[b] + np.asarray(job.dst), n_set + n_reset)
         B = pool.block_lines
         steps += [self.erase_ns / B] * B
         return {"block": job.block, "steps": steps, "next": 0}
@@ -166,6 +180,7 @@ class EraseAgent:
         B = pool.block_lines
         blk = job["block"]
         self.line_writes[b][blk * B:(blk + 1) * B] += 1       # bulk init wears every line
+        self.engine.path.ledger.add("erase", self.base[b] + np.arange(blk * B, (blk + 1) * B), self.bits)
         pool.mark_initialized(blk)
         self.jobs[b] = None
         self.erases += 1

@@ -48,6 +48,9 @@ class FastEngine(TimingEngine):
         gaps = unsupported(cfg, path, refresh)
         if gaps:
             raise ValueError("the fast engine does not cover: " + "; ".join(gaps))
+        # No hint ever reaches this engine (see unsupported), so every user write
+        # takes its in-place cost: its wear is known when the write path applies it.
+        path.defer_user_wear = False
 
     def _queue_hints(self, hints: Chunk) -> None:
         raise RuntimeError("the fast engine does not pre-program from hints; use the reference engine")
@@ -280,7 +283,7 @@ class FastEngine(TimingEngine):
 
     def cancel_wear(self, phys: np.ndarray, wasted: np.ndarray) -> None:
         """Cells programmed by aborted writes (the reference counts them one by one)."""
-        np.add.at(self.path.line_cells, phys, wasted)
+        self.path.ledger.add("cancelled", phys, wasted)
 
     # ------------------------------------------------------------ simulation
     def run(self) -> TimingTotals:

@@ -160,6 +160,7 @@ class TimingEngine:
         self.out_of_place = path.scheme.out_of_place
         self.hint_mode = c.hint_preset
         self.cost_at_service = self.out_of_place or self.hint_mode
+        path.defer_user_wear = self.cost_at_service      # user wear counted at service
         self.preset: dict[int, bool] = {}          # lines pre-programmed from a hint, not yet written
         # Closed loop with refresh: write times are known only at hand-over,
         # so write items must carry their physical line (full layout).
@@ -537,6 +538,7 @@ class TimingEngine:
             tot.reset_cells += n_reset
             tot.user_set_cells += n_set
             tot.user_reset_cells += n_reset
+            self.path.ledger.add("user", phys if self.erase is None else self.erase.base[b] + phys, n_set + n_reset)
             per_reset, per_set = cell.cells_per_round(self.round_budget_ua)
             cur = max(min(n_reset, per_reset) * cell.reset_ua, min(n_set, per_set) * cell.set_ua)
             rr = sr = 0            # no cancellation or pausing of these writes
@@ -576,7 +578,7 @@ class TimingEngine:
                     tot.cancelled_pj += done * pj
                     wasted = int(round(done * cells))
                     tot.cancelled_cells += wasted
-                    self.path.line_cells[phys] += wasted
+                    self.path.ledger.add("cancelled", phys, wasted)
                     again = (idx, ch, service, True, cur, pre, rr, sr, pj, cells, phys)
                 elif c.write_pause and rr + sr > 0 and t_r > prog_start:
                     e = t_r - prog_start
@@ -608,7 +610,7 @@ class TimingEngine:
             tot.preset_pj += pj
             tot.preset_cells += cells
             self.path.line_writes[phys] += 1
-            self.path.line_cells[phys] += cells
+            self.path.ledger.add("preset", phys, cells)
         elif idx >= 0:
             done_t = env.now
             prep.finish[idx] = done_t
@@ -643,7 +645,7 @@ class TimingEngine:
             if path.cell_wear is not None:
                 path.cell_wear[lines, :self.line_bits] += np.unpackbits(~stored, axis=1)
         np.add.at(path.line_writes, lines, 1)
-        np.add.at(path.line_cells, lines, cells)
+        path.ledger.add("refresh", lines if self.erase is None else self.erase.where(lines), cells)
         return program + cell.read_ns, energy + read_pj, cells, current
 
     def _finish(self) -> TimingTotals:

@@ -14,6 +14,20 @@ profile (:func:`effective_profile`).  A move copies a line of user data, so
 it is taken to program cells with the same profile as a user write, scaled
 by ``move_weight`` (e.g. > 1 if moves are full-line writes while user writes
 are differential).
+
+Every program is also recorded in a :class:`~memsim.policy.ledger.WearLedger`
+(user writes, moves, metadata, and with :class:`PoolLeveler` the erase pool's
+cleaner moves and bulk initializations), in cells: ``cells_per_write`` cells
+per user write or move.  :meth:`WearCounter.wear` reads the ledger, in units
+of ``wear_unit`` cells (the cells one write of the death law's profile
+programs), so every program counts toward lifetime.
+
+Block erase.  :class:`PoolLeveler` drives a
+:class:`~memsim.policy.erase.BlockPool` through
+:meth:`~memsim.policy.erase.BlockPool.apply_instant` (cleaning and bulk
+initialization take no time): each user write lands out of place, the
+cleaner's copies are moves, and every line of an initialized block is
+charged ``erase_cells_per_line`` cells.
 """
 from __future__ import annotations
 
@@ -23,7 +37,9 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from memsim.errors import ConfigError
-from memsim.policy.leveling.base import Leveler
+from memsim.policy.erase import BlockPool
+from memsim.policy.ledger import WearLedger
+from memsim.policy.leveling.base import Leveler, LevelResult
 
 
 def cell_profile(cells: float | np.ndarray | None, line_bits: int) -> np.ndarray:
@@ -99,6 +115,8 @@ class WearResult:
     bit_profile: np.ndarray
     move_weight: float = 1.0
     leveler_state: dict = field(default_factory=dict)
+    ledger: WearLedger | None = None
+    wear_unit: float = 1.0
 
     @property
     def move_writes(self) -> int:
@@ -106,7 +124,10 @@ class WearResult:
 
     @property
     def line_wear(self) -> np.ndarray:
-        """Write equivalents per physical line: user + move_weight * moves."""
+        """Write equivalents per physical line: the ledger's cells over ``wear_unit``
+        (without a ledger, user + move_weight * moves)."""
+        if self.ledger is not None:
+            return self.ledger.line_cells() / self.wear_unit
         return self.user_line_writes + self.move_weight * self.move_line_writes
 
     @property
@@ -148,14 +169,20 @@ class WearCounter:
     """
 
     def __init__(self, leveler: Leveler, *, cells: float | np.ndarray | None = None,
-                 line_bits: int = 512, move_weight: float = 1.0) -> None:
+                 line_bits: int = 512, move_weight: float = 1.0,
+                 cells_per_write: float | None = None, wear_unit: float | None = None) -> None:
         if not move_weight >= 0:
             raise ConfigError("wear.move_weight", repr(move_weight), "a number >= 0")
         self.leveler = leveler
         self.line_bits = int(line_bits)
         self.p = cell_profile(cells, self.line_bits)
         self.move_weight = float(move_weight)
+        self.cells_per_write = float(self.p.sum() if cells_per_write is None else cells_per_write)
+        self.wear_unit = float(self.cells_per_write if wear_unit is None else wear_unit)
         P = leveler.n_physical
+        self.ledger = WearLedger(P)
+        # Erase-pool cleaner copies are erase wear, not leveling moves.
+        self.move_cause = getattr(leveler, "move_cause", "move")
         self.user = np.zeros(P, dtype=np.int64)
         self.moved = np.zeros(P, dtype=np.int64)
         self.user_writes = 0
@@ -182,6 +209,12 @@ class WearCounter:
             np.add.at(self.moved, dst, 1)
         elif dst.size:
             self.moved += np.bincount(dst, minlength=P)
+        self.ledger.add(self.move_cause, dst, self.cells_per_write * self.move_weight)
+        if res.moves.cost_writes:
+            self.ledger.add("meta", None, res.moves.cost_writes * self.line_bits)
+        erased = getattr(self.leveler, "erased_lines", None)
+        if erased is not None and erased.size:
+            self.ledger.add("erase", erased, self.leveler.erase_cells_per_line)
         self.cost_writes += res.moves.cost_writes
         if res.bit_offset is None:
             self.offset_counts[0] += la.size
@@ -194,13 +227,14 @@ class WearCounter:
         if self._pending:
             phys = self._pending[0] if len(self._pending) == 1 else np.concatenate(self._pending)
             self.user += np.bincount(phys, minlength=self.user.size)
+            self.ledger.add("user", phys, self.cells_per_write)
             self._pending.clear()
             self._pending_n = 0
 
     def wear(self) -> np.ndarray:
-        """Current write equivalents per physical line (float64)."""
+        """Current write equivalents per physical line (float64), from the ledger."""
         self._flush()
-        return self.user + self.move_weight * self.moved
+        return self.ledger.line_cells() / self.wear_unit
 
     def result(self) -> WearResult:
         self._flush()
@@ -208,12 +242,56 @@ class WearCounter:
             user_line_writes=self.user.copy(), move_line_writes=self.moved.copy(),
             user_writes=self.user_writes, cost_writes=self.cost_writes,
             bit_profile=rotate_profile(self.p, self.offset_counts),
-            move_weight=self.move_weight, leveler_state=self.leveler.state())
+            move_weight=self.move_weight, leveler_state=self.leveler.state(), ledger=self.ledger,
+            wear_unit=self.wear_unit)
+
+
+class PoolLeveler(Leveler):
+    """A block-erase pool as the wear engine's line map (cleaning takes no time).
+
+    Parameters
+    ----------
+    pool:
+        The block pool (its state advances).
+    erase_cells_per_line:
+        Cells a bulk initialization programs per line (every cell: the
+        line's bits).
+    """
+
+    name = "block_erase_pool"
+    move_cause = "erase"
+
+    def __init__(self, pool: BlockPool, erase_cells_per_line: float) -> None:
+        super().__init__(pool.n_logical)
+        self.pool = pool
+        self.n_physical = pool.n_physical
+        self.erase_cells_per_line = float(erase_cells_per_line)
+        self.erased_lines = np.empty(0, dtype=np.int64)
+
+    def lookup(self, logical: np.ndarray) -> np.ndarray:
+        return self.pool.l2p()[np.asarray(logical, dtype=np.int64)]
+
+    def scale_free(self) -> bool:
+        # Cleaning depends on the spare share and block size, not on how many
+        # blocks there are (many-blocks limit, policy/erase.py).
+        return True
+
+    def apply(self, logical: np.ndarray) -> LevelResult:
+        r = self.pool.apply_instant(logical)
+        B = self.pool.block_lines
+        self.erased_lines = (r.erased[:, None] * B + np.arange(B)).ravel()
+        self.user_writes += r.phys.size
+        self.move_writes += len(r.moves)
+        return LevelResult(phys=r.phys, moves=r.moves)
+
+    def state(self) -> dict:
+        return {"scheme": self.name, "erases": int(self.pool.erase_count.sum()), **super().state()}
 
 
 def run_wear(chunks: Iterable[np.ndarray], leveler: Leveler, *,
              cells: float | np.ndarray | None = None, line_bits: int = 512,
-             move_weight: float = 1.0, max_user_writes: int | None = None) -> WearResult:
+             move_weight: float = 1.0, max_user_writes: int | None = None,
+             cells_per_write: float | None = None, wear_unit: float | None = None) -> WearResult:
     """Fast-forward a stream of logical line writes through ``leveler``.
 
     Parameters
@@ -231,7 +309,8 @@ def run_wear(chunks: Iterable[np.ndarray], leveler: Leveler, *,
     -------
     WearResult
     """
-    wc = WearCounter(leveler, cells=cells, line_bits=line_bits, move_weight=move_weight)
+    wc = WearCounter(leveler, cells=cells, line_bits=line_bits, move_weight=move_weight,
+                     cells_per_write=cells_per_write, wear_unit=wear_unit)
     for chunk in chunks:
         if max_user_writes is not None:
             left = max_user_writes - wc.user_writes

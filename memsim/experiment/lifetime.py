@@ -27,6 +27,27 @@ pattern ("traffic" in the summary):
   so an end of life that needs more dead lines than the region holds
   (``capacity_loss``) is never reached (``inf``).
 
+Leveling at device scale.  Running a leveler on the modeled lines moves its
+registers ``S`` times too fast in device terms (Start-Gap's Start advances one
+line per ``(N + 1) psi`` writes), so a hot region a real device cannot move
+across in its lifetime would look leveled.  Plain Start-Gap is therefore
+evaluated at device size in closed form (:mod:`memsim.engine.device_wear`):
+the workload's share of writes per modeled line is counted over the window,
+each modeled line stands for ``S`` adjacent device lines, and the wear of every
+device line under the device's own Start and Gap registers is summed
+exactly; lifetime is found by bisection on the device writes (cost O(lines)
+per step, independent of the device size).  With one modeled line per device
+line it agrees with a replay to failure of the real leveler within 3%
+(tests/test_device_wear.py).  Randomized Start-Gap is evaluated at device
+size by a normal approximation of each line's window sum (null where the
+sum is too skewed for it; its error against a replay is measured in the
+same tests), Security Refresh by its steady state over many key rounds.
+``lifetime_leveling_scale`` says which way a run went: ``device`` (these
+three, spread traffic) or ``modeled`` (the attack patterns; none and
+bit rotation, which do not depend on the line count; region Start-Gap and
+hot/cold swap, which then give no estimate when a modeled line stands for
+more than one device line).
+
 The ideal lifetime is perfect leveling of full-line writes over the whole
 device, ``endurance_mean * capacity / write_rate``; schemes that program
 fewer cells per write can exceed it (``lifetime_vs_ideal`` > 1).
@@ -51,18 +72,24 @@ from __future__ import annotations
 import time
 from collections.abc import Iterator, Mapping
 from dataclasses import dataclass
-from math import gcd
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 import pandas as pd
 from scipy import stats
-from scipy.special import betainc, betaincinv, expit, gammaln, ndtr, xlog1py, xlogy
+from scipy.special import betainc, betaincinv, expit, gammaln, xlog1py, xlogy
 
 from memsim import __version__
 from memsim.config import RunConfig
-from memsim.engine.wear import WearResult, rotate_profile, run_wear
+from memsim.engine.device_wear import (
+    randomized_start_gap_device_lifetime,
+    region_start_gap_device_lifetime,
+    security_refresh_device_rates,
+    security_refresh_round_load,
+    start_gap_device_lifetime,
+)
+from memsim.engine.wear import PoolLeveler, WearResult, rotate_profile, run_wear
 from memsim.errors import ConfigError
 from memsim.experiment.build import build_leveler, build_path
 from memsim.experiment.progress import track
@@ -74,7 +101,10 @@ from memsim.metrics.lifetime import (
     writes_to_years,
 )
 from memsim.metrics.result import RunResult
+from memsim.policy.erase import BlockPool
 from memsim.policy.leveling.base import Leveler
+from memsim.policy.write import SCHEMES
+from memsim.policy.write.bits import popcount_rows
 from memsim.policy.writepath import WritePath
 from memsim.tech.endurance import EnduranceModel
 from memsim.units import GIB
@@ -99,16 +129,7 @@ _Q_STEP = 2e-3                     # relative step profiles are grouped by
 
 def cell_cdf(model: EnduranceModel, y: np.ndarray) -> np.ndarray:
     """CDF of one cell's endurance at ``y`` (inverse of ``model.ppf``)."""
-    y = np.asarray(y, dtype=np.float64)
-    if model.cov == 0:
-        return (y >= model.mean).astype(np.float64)
-    if model.dist == "lognormal":
-        s2 = np.log1p(model.cov**2)
-        with np.errstate(divide="ignore"):
-            return ndtr((np.log(np.maximum(y, 0.0)) - (np.log(model.mean) - s2 / 2)) / np.sqrt(s2))
-    sd = model.cov * model.mean
-    p0 = ndtr(-model.mean / sd)            # mass cut off below zero
-    return np.clip((ndtr((y - model.mean) / sd) - p0) / (1.0 - p0), 0.0, 1.0)
+    return model.cdf(y)
 
 
 def _binom_pmf(j: np.ndarray, n: int, p: np.ndarray) -> np.ndarray:
@@ -300,6 +321,26 @@ def _strata(law: DeathLaw, rng: np.random.Generator, n: int, copies: float, need
     return DeviceDeaths(law.ppf(u), weight, int(np.ceil(needed / weight)), False, first)
 
 
+def even_wear_writes(law: DeathLaw, rate: float, lines: float, needed: int) -> float:
+    """User writes to end of life if ``lines`` lines all wore at the mean ``rate``.
+
+    The same cells and the same programs per write, spread perfectly: every
+    line then wears at ``rate`` write equivalents per user write and end of
+    life is the ``needed``-th smallest death wear among ``lines`` i.i.d.
+    lines.  Its median, ``ppf(B^-1(1/2))`` with ``B`` the Beta(needed,
+    lines - needed + 1) law of the ``needed``-th smallest of ``lines``
+    uniforms (David and Nagaraja, *Order Statistics*, Wiley 2003), stands
+    for it.  Lifetime over this separates leveler quality (how unevenly the
+    writes fall) from cell variation (which both share).
+    """
+    if not rate > 0 or law.never_dies:
+        return float("inf")
+    n = max(float(lines), 1.0)
+    needed = int(min(max(needed, 1), n))
+    u = float(betaincinv(needed, n - needed + 1, 0.5))
+    return float(law.ppf(np.array([u]))[0]) / rate
+
+
 def _capacity_share(dd: DeviceDeaths) -> tuple[float, bool]:
     """``capacity_loss`` that makes the metrics functions stop at ``dd.needed``."""
     entries = dd.death.size
@@ -381,6 +422,17 @@ def rotated_profile(profile: float | np.ndarray, line_bits: int, leveler: Levele
     return q
 
 
+def _pool_write_cells(cfg: RunConfig, sample: WritePath) -> float:
+    """Cells an out-of-place write into an initialized line programs, on average.
+
+    Only the bits that differ from the initialized state: the 0 bits of
+    all-SET blocks, the 1 bits of all-RESET blocks (the sample pass's stored
+    lines give the data's share of 1 bits).
+    """
+    ones = float(popcount_rows(sample.stored).mean())
+    return sample.line_bits - ones if cfg.erase.init_state == "set" else ones
+
+
 def sample_profile(cfg: RunConfig, rng: np.random.Generator, writes: int) -> WritePath:
     """A short write-scheme pass: ``writes`` uniform writes over a few lines.
 
@@ -429,30 +481,9 @@ class DeviceScale:
 
 
 def leveling_cycle_writes(leveler: Leveler) -> float:
-    """User writes for the leveler to move every line once through its cycle (uniform traffic).
-
-    Start-Gap: a full Start rotation, ``N (N + 1) psi`` writes (Qureshi et al.,
-    MICRO 2009); region Start-Gap: the same per region; Security Refresh:
-    one key round of every region, ``regions * S * interval``; bit rotation:
-    a full turn of the offset (or the inner scheme's cycle if longer).
-    NaN when the scheme has no fixed cycle (none, hot/cold swap).
-    """
-    name = leveler.name
-    if name == "randomized_start_gap":
-        leveler = leveler.inner
-        name = leveler.name
-    if name == "start_gap":
-        n = leveler.n_logical
-        return float(n) * (n + 1) * leveler.psi
-    if name == "region_start_gap":
-        n_max = int(leveler.size.max())
-        return float(leveler.n_logical) * (n_max + 1) * leveler.psi
-    if name == "security_refresh":
-        return float(leveler.n_physical) * leveler.interval
-    if name == "bit_rotation":
-        turn = leveler.line_bits // gcd(leveler.step, leveler.line_bits) * leveler.interval
-        return float(np.nanmax([turn, leveling_cycle_writes(leveler.inner)]))
-    return float("nan")
+    """User writes for the leveler to move every line once through its cycle
+    (uniform traffic); each leveler reports its own (:meth:`Leveler.cycle_writes`)."""
+    return leveler.cycle_writes()
 
 
 def wear_tables(line_wear: np.ndarray, bins: int = 64) -> dict[str, pd.DataFrame]:
@@ -490,8 +521,19 @@ def _ideal_years(cfg: RunConfig, scale: DeviceScale, rate: float) -> float:
                            line_scale=scale.line_scale)
 
 
+def _even_writes(law: DeathLaw, line_wear: np.ndarray, user_writes: float, scale: DeviceScale,
+                 capacity_loss: float) -> float:
+    """:func:`even_wear_writes` for the device lines the modeled wear falls on."""
+    lines = line_wear.size * scale.copies
+    needed = int(np.floor(capacity_loss * scale.device_lines)) + 1
+    if needed > lines:
+        return float("inf")
+    return even_wear_writes(law, float(line_wear.mean()) / max(user_writes, 1), lines, needed)
+
+
 def _years_fields(prefix: str, life: Lifetime, scale: DeviceScale, line_bytes: int,
-                  rate: float, ideal_years: float, weight: float) -> dict[str, Any]:
+                  rate: float, ideal_years: float, weight: float,
+                  even_writes: float = float("nan")) -> dict[str, Any]:
     def years(w: float) -> float:
         if np.isnan(w):
             return float("nan")
@@ -503,10 +545,38 @@ def _years_fields(prefix: str, life: Lifetime, scale: DeviceScale, line_bytes: i
     y = years(life.end_writes)
     return {f"{prefix}_years": y, f"{prefix}_first_failure_years": years(life.first_failure_writes),
             f"{prefix}_vs_ideal": y / ideal_years if np.isfinite(ideal_years) else float("nan"),
+            f"{prefix}_vs_even_wear": (life.end_writes / even_writes
+                                       if np.isfinite(even_writes) and np.isfinite(life.end_writes)
+                                       else float("nan")),
             f"{prefix}_dead_lines": life.dead_lines * weight}
 
 
 # ---------------------------------------------------------------- timing runs
+
+
+_NULL_WHEN_SHORT = ("lifetime_years", "lifetime_first_failure_years", "lifetime_vs_ideal",
+                    "lifetime_vs_even_wear")
+
+
+def _too_short(wear: np.ndarray, cycles: float, max_noise: float) -> str:
+    """Why a timing run's wear cannot be extrapolated to a lifetime, or "".
+
+    Extrapolation takes each line's count as its rate.  The lines that end
+    life are the most worn ones, and the largest of P counts with mean ``c``
+    overshoots its rate by about ``sqrt(2 ln P / c)`` relative (the maximum of
+    P Gaussian deviations, common practice); and a leveler whose cycle the
+    run did not complete has not spread its writes yet.
+    """
+    top = float(wear.max())
+    noise = float(np.sqrt(2.0 * np.log(max(wear.size, 2)) / top)) if top > 0 else float("inf")
+    if noise > max_noise:
+        return (f"run too short for a lifetime: the most-worn line got {top:.3g} writes, counting noise "
+                f"~{noise:.0%} > lifetime.timing_max_noise {max_noise:g}; use memsim lifetime or more "
+                f"requests")
+    if np.isfinite(cycles) and cycles < 1:
+        return (f"run too short for a lifetime: it spans {cycles:.3g} of the leveler's cycle, so wear "
+                f"has not evened out; use memsim lifetime")
+    return ""
 
 
 def lifetime_fields(cfg: RunConfig, path: WritePath, write_bytes_per_s: float) -> dict[str, Any]:
@@ -536,20 +606,26 @@ def lifetime_fields(cfg: RunConfig, path: WritePath, write_bytes_per_s: float) -
     Notes
     -----
     The per-line rates are measured over the run only.  They are steady-state
-    rates only if every line received many writes (counting noise is about
-    ``1 / sqrt(lifetime_window_line_writes_mean)``; the hottest lines of a
-    short run look hotter than they are) and if the window spans the
+    rates only if the most-worn lines received many writes (their counting
+    noise is about ``sqrt(2 ln lines / writes)``) and if the window spans the
     leveler's cycle (``lifetime_window_cycles`` >= 1; Start-Gap over N lines
     needs ``N (N + 1) psi`` writes, far more than a timing run holds for
-    realistic N).  Otherwise the figure understates the lifetime; use
-    :func:`lifetime`, which runs the wear engine over a long window.
+    realistic N).  Otherwise the lifetime keys are null (None) and
+    ``lifetime_note`` says why; :func:`lifetime` runs the wear engine over a
+    long window.
     """
     scale = DeviceScale.of(cfg)
     rate, source = ((cfg.lifetime.write_rate_gbps * 1e9, "config")
                     if cfg.lifetime.write_rate_gbps > 0 else (float(write_bytes_per_s), "run"))
     lv = path.leveler
-    wear = path.line_writes.astype(np.float64)
     user = path.user_writes
+    # Wear from the ledger (every program, whatever issued it), in write
+    # equivalents: a line's cells divided by the cells one write programs.
+    profile = rotated_profile(path_profile(path), path.line_bits, lv) if path.line_writes.any() else 1.0
+    n_cells = profile_cells(path)
+    per_write = float(np.sum(np.broadcast_to(profile, (n_cells,))))
+    cells = path.ledger.line_cells()
+    wear = cells / per_write if per_write > 0 else np.zeros_like(cells)
     mean = float(wear.mean()) if wear.size else 0.0
     ideal_years = _ideal_years(cfg, scale, rate)
     out: dict[str, Any] = {
@@ -560,6 +636,7 @@ def lifetime_fields(cfg: RunConfig, path: WritePath, write_bytes_per_s: float) -
         "lifetime_first_failure_years": float("inf"),
         "lifetime_ideal_years": ideal_years,
         "lifetime_vs_ideal": float("nan"),
+        "lifetime_vs_even_wear": float("nan"),
         "leveling_write_overhead": (path.move_writes + path.meta_writes) / max(user, 1),
         "wear_max_over_mean": float(wear.max() / mean) if mean > 0 else 0.0,
         "wear_cov": float(wear.std() / mean) if mean > 0 else 0.0,
@@ -567,22 +644,117 @@ def lifetime_fields(cfg: RunConfig, path: WritePath, write_bytes_per_s: float) -
         "lifetime_window_line_writes_mean": mean,
         "lifetime_window_cycles": user / leveling_cycle_writes(lv),
     }
+    out.update(path.ledger.summary())
+    out["lifetime_note"] = None
     if user == 0 or mean == 0:
+        for k in _NULL_WHEN_SHORT:
+            out[k] = None
+        out["lifetime_note"] = "no writes reached the memory in the run: no wear to extrapolate"
         return out
-    profile = rotated_profile(path_profile(path), path.line_bits, lv)
-    law = DeathLaw(_endurance(cfg), profile_cells(path), cfg.lifetime.ecp_entries, profile)
+    note = _too_short(wear, out["lifetime_window_cycles"], cfg.lifetime.timing_max_noise)
+    if not note and not lv.scale_free() and scale.traffic == "spread" and scale.copies > 1:
+        note = (f"no lifetime from a timing run with {lv.name}: it remaps the modeled lines only, a cycle "
+                f"{scale.copies:.0f}x shorter than the device's; use memsim lifetime")
+    if note:
+        for k in _NULL_WHEN_SHORT:
+            out[k] = None
+        out["lifetime_note"] = note
+        return out
+    law = DeathLaw(_endurance(cfg), n_cells, cfg.lifetime.ecp_entries, profile)
     rng = np.random.default_rng(_seeds(cfg.run.seed)["endurance"])
     dd = device_deaths(law, rng, wear / user, scale.copies, scale.device_lines, cfg.lifetime.capacity_loss)
-    result = WearResult(path.line_writes, np.zeros_like(path.line_writes), user, path.meta_writes,
-                        np.zeros(1))
+    result = WearResult(wear, np.zeros_like(wear), user, path.meta_writes, np.zeros(1))
     life = extrapolate(result, dd)
-    f = _years_fields("lifetime", life, scale, cfg.array.line_bytes, rate, ideal_years, dd.weight)
+    even = _even_writes(law, wear, user, scale, cfg.lifetime.capacity_loss)
+    f = _years_fields("lifetime", life, scale, cfg.array.line_bytes, rate, ideal_years, dd.weight, even)
     f.pop("lifetime_dead_lines")
     out.update(f)
     return out
 
 
 # ---------------------------------------------------------------- wear-engine runs
+
+
+def _start_gap_at_device(cfg: RunConfig, lv: Leveler, law: DeathLaw, chunks: Iterator[np.ndarray],
+                         window: int, scale: DeviceScale, seed: np.random.SeedSequence,
+                         stream_seed: np.random.SeedSequence) -> Lifetime:
+    """Estimate (a) for plain Start-Gap evaluated at device size (:mod:`memsim.engine.device_wear`).
+
+    The workload's share of writes per logical line is the synthetic
+    pattern's expected share (no sampling noise), or for a trace counted
+    over the window; lines outside the footprint get none (the device's
+    Start-Gap spans every line of the device).
+    """
+    shares = None
+    if cfg.workload.pattern != "trace":
+        wl = cfg.workload.model_copy(update={"arrival": "closed", "requests": 1 << 62})
+        shares = SyntheticSource(wl, cfg.footprint, np.random.default_rng(stream_seed)).expected_write_shares()
+    if shares is None:
+        counts = run_wear(chunks, Leveler(cfg.footprint), max_user_writes=window)
+        shares = counts.user_line_writes / max(counts.user_writes, 1)
+    rates = np.zeros(cfg.array.lines)
+    rates[: cfg.footprint] = shares
+    dd = device_deaths(law, np.random.default_rng(seed), rates, scale.copies, scale.device_lines,
+                       cfg.lifetime.capacity_loss)
+    needed = dd.needed
+    end, first = start_gap_device_lifetime(rates, dd.death, dd.weight, needed, lv.psi, scale.copies)
+    if not dd.exact:
+        first = start_gap_device_lifetime(rates, dd.first[:, None], 1.0, 1, lv.psi, scale.copies)[1]
+    # Device writes -> modeled user writes (each stands for S device writes).
+    t = scale.time_scale
+    return Lifetime("device_scale", end / t, first / t, int(min(needed, dd.death.size)) if np.isfinite(end) else 0,
+                    int(scale.device_lines))
+
+
+def _device_rates(cfg: RunConfig, chunks: Iterator[np.ndarray], window: int,
+                  stream_seed: np.random.SeedSequence) -> np.ndarray:
+    """Share of writes of every modeled logical line (expected, or counted for a trace)."""
+    shares = None
+    if cfg.workload.pattern != "trace":
+        wl = cfg.workload.model_copy(update={"arrival": "closed", "requests": 1 << 62})
+        shares = SyntheticSource(wl, cfg.footprint, np.random.default_rng(stream_seed)).expected_write_shares()
+    if shares is None:
+        counts = run_wear(chunks, Leveler(cfg.footprint), max_user_writes=window)
+        shares = counts.user_line_writes / max(counts.user_writes, 1)
+    rates = np.zeros(cfg.array.lines)
+    rates[: cfg.footprint] = shares
+    return rates
+
+
+def _security_refresh_at_device(cfg: RunConfig, lv: Leveler, law: DeathLaw, chunks: Iterator[np.ndarray],
+                                window: int, scale: DeviceScale, seeds: dict) -> Lifetime:
+    """Estimate (a) for Security Refresh at device size (steady state over many key rounds).
+
+    NaN (no estimate) when one round can put more than 1% of the weakest
+    line's death wear on one physical line: then the steady state does not
+    hold before the first death.
+    """
+    rates = _device_rates(cfg, chunks, window, seeds["stream"])
+    blocks = min(lv.region_lines, cfg.array.lines)
+    steady = security_refresh_device_rates(rates, blocks, lv.interval)
+    dd = device_deaths(law, np.random.default_rng(seeds["endurance"]), steady, scale.copies,
+                       scale.device_lines, cfg.lifetime.capacity_loss)
+    if security_refresh_round_load(rates, blocks, lv.interval) > 0.01 * float(dd.first.min()):
+        nan = float("nan")
+        return Lifetime("device_scale", nan, nan, 0, int(scale.device_lines))
+    life = extrapolate(WearResult(steady, np.zeros_like(steady), 1, 0, np.zeros(1)), dd)
+    life.method = "device_scale"
+    return life
+
+
+def _randomized_start_gap_at_device(cfg: RunConfig, lv: Leveler, law: DeathLaw,
+                                    chunks: Iterator[np.ndarray], window: int, scale: DeviceScale,
+                                    stream_seed: np.random.SeedSequence) -> Lifetime:
+    """Estimate (a) for randomized Start-Gap at device size (an approximation,
+    :func:`memsim.engine.device_wear.randomized_start_gap_device_lifetime`)."""
+    rates = _device_rates(cfg, chunks, window, stream_seed)
+    needed = int(np.floor(cfg.lifetime.capacity_loss * scale.device_lines)) + 1
+    psi = lv.inner.psi
+    end = randomized_start_gap_device_lifetime(rates, law.cdf, needed, psi, scale.copies)
+    first = end if needed == 1 else randomized_start_gap_device_lifetime(rates, law.cdf, 1, psi, scale.copies)
+    t = scale.time_scale
+    return Lifetime("device_scale", end / t, first / t, needed if np.isfinite(end) else 0,
+                    int(scale.device_lines))
 
 
 def write_stream(cfg: RunConfig, seed: np.random.SeedSequence,
@@ -694,13 +866,23 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
         return write_stream(cfg, seeds["stream"])
 
     def new_leveler() -> Leveler:
+        if SCHEMES[cfg.write.scheme].out_of_place:
+            e = cfg.erase
+            pool = BlockPool(cfg.footprint, e.block_lines, e.spare_fraction, e.init_state, e.victim,
+                             e.low_watermark, e.fallback)
+            return PoolLeveler(pool, cfg.array.line_bytes * 8)     # bulk init drives every data cell
         return build_leveler(cfg, np.random.default_rng(seeds["leveler"]))
 
     sample = sample_profile(cfg, np.random.default_rng(seeds["profile"]), min(window, _PROFILE_WRITES))
     lv = new_leveler()
-    wear = run_wear(track(stream(), window, "writes", "wear window"), lv, max_user_writes=window)
     profile = rotated_profile(path_profile(sample), sample.line_bits, lv)
-    law = DeathLaw(_endurance(cfg), profile_cells(sample), lt.ecp_entries, profile)
+    n_cells = profile_cells(sample)
+    # The ledger counts cells; the death law's write equivalent is one write of `profile`.
+    per_write = float(np.sum(np.broadcast_to(profile, (n_cells,))))
+    cells_per_write = _pool_write_cells(cfg, sample) if isinstance(lv, PoolLeveler) else per_write
+    counting = {"cells_per_write": cells_per_write, "wear_unit": per_write}
+    wear = run_wear(track(stream(), window, "writes", "wear window"), lv, max_user_writes=window, **counting)
+    law = DeathLaw(_endurance(cfg), n_cells, lt.ecp_entries, profile)
     dd = device_deaths(law, np.random.default_rng(seeds["endurance"]), wear.line_wear / wear.user_writes,
                        scale.copies, scale.device_lines, lt.capacity_loss)
     ideal_years = _ideal_years(cfg, scale, rate)
@@ -709,17 +891,80 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
                          "write_rate_source": source, "lifetime_traffic": scale.traffic,
                          "lifetime_line_scale": scale.line_scale, "device_lines": scale.device_lines,
                          "lifetime_ideal_years": ideal_years}
-    args = (scale, cfg.array.line_bytes, rate, ideal_years, dd.weight)
+    even = _even_writes(law, line_wear, wear.user_writes, scale, lt.capacity_loss)
+    args = (scale, cfg.array.line_bytes, rate, ideal_years, dd.weight, even)
+    device_scale = ((lv.name in ("none", "start_gap", "randomized_start_gap", "security_refresh")
+                     or (lv.name == "region_start_gap" and lv.perm is None and lt.capacity_loss == 0))
+                    and scale.traffic == "spread")
+    s["lifetime_leveling_scale"] = "device" if device_scale else "modeled"
+    if not device_scale and not lv.scale_free() and scale.traffic == "spread" and scale.copies > 1:
+        # The leveler ran on the modeled lines: its cycle is far shorter than
+        # on the device, so its figure would look better than the device's.
+        s.update({k: None for k in ("lifetime_years", "lifetime_first_failure_years", "lifetime_vs_ideal",
+                                    "lifetime_vs_even_wear")})
+        s["lifetime_note"] = (f"no estimate: {lv.name} is evaluated on the modeled lines only, whose cycle is "
+                              f"{scale.copies:.0f}x shorter than the device's; set array.lines to the device's "
+                              f"line count ({scale.device_lines:.0f}) for a direct evaluation")
+        method = "none"
     if method in ("both", "extrapolated"):
-        a = extrapolate(wear, dd)
+        if device_scale and lv.name == "none":
+            # No remapping: each line wears at its own expected share (no window noise).
+            rates = _device_rates(cfg, stream(), window, seeds["stream"])
+            nd = device_deaths(law, np.random.default_rng(seeds["endurance"]), rates, scale.copies,
+                               scale.device_lines, lt.capacity_loss)
+            a = extrapolate(WearResult(rates, np.zeros_like(rates), 1, 0, np.zeros(1)), nd)
+            a.method = "device_scale"
+        elif device_scale and lv.name == "region_start_gap":
+            rates = _device_rates(cfg, stream(), window, seeds["stream"])
+            rd = device_deaths(law, np.random.default_rng(seeds["endurance"]), rates, scale.copies,
+                               scale.device_lines, 0.0)
+            q, rem = divmod(cfg.array.lines, lv.regions)     # the device's regions span every line
+            sizes = np.where(np.arange(lv.regions) < rem, q + 1, q)
+            w = region_start_gap_device_lifetime(rates, sizes, rd.first[:, None], lv.psi, scale.copies)
+            t = scale.time_scale
+            a = Lifetime("device_scale", w / t, w / t, 1 if np.isfinite(w) else 0, int(scale.device_lines))
+        elif device_scale and lv.name == "security_refresh":
+            a = _security_refresh_at_device(cfg, lv, law, stream(), window, scale, seeds)
+            if np.isnan(a.end_writes) and scale.copies == 1:
+                a = extrapolate(wear, dd)       # the modeled leveler is the device
+                s["lifetime_leveling_scale"] = "modeled"
+        elif device_scale and lv.name == "randomized_start_gap":
+            a = _randomized_start_gap_at_device(cfg, lv, law, stream(), window, scale, seeds["stream"])
+            if np.isnan(a.end_writes) and scale.copies == 1:
+                # One modeled line per device line: the modeled leveler is the device.
+                a = extrapolate(wear, dd)
+                s["lifetime_leveling_scale"] = "modeled"
+        elif device_scale:
+            a = _start_gap_at_device(cfg, lv, law, stream(), window, scale, seeds["endurance"],
+                                     seeds["stream"])
+        else:
+            a = extrapolate(wear, dd)
         s.update(_years_fields("lifetime", a, *args))
+        if np.isnan(a.end_writes):
+            for k in ("lifetime_years", "lifetime_first_failure_years", "lifetime_vs_ideal",
+                      "lifetime_vs_even_wear"):
+                s[k] = None
+            s["lifetime_note"] = (f"no device-scale estimate for {lv.name}: its device-scale approximation "
+                                  f"does not hold for this traffic (see memsim.engine.device_wear)")
+    replay_ok = lv.scale_free() or scale.copies == 1 or scale.traffic != "spread"
+    if method in ("both", "run_to_failure") and not replay_ok:
+        # The replay runs the leveler on the modeled lines: a cycle far too
+        # short in device terms, so its figure would mislead.
+        s["lifetime_replay_note"] = (f"no replay: {lv.name} would run on {cfg.array.lines} modeled lines standing "
+                                     f"for {scale.device_lines:.0f} device lines; set array.lines to the "
+                                     f"device's line count to replay it")
+        if method == "run_to_failure":
+            s.update({k: None for k in ("lifetime_years", "lifetime_first_failure_years", "lifetime_vs_ideal",
+                                        "lifetime_vs_even_wear")})
+            s["lifetime_note"] = s["lifetime_replay_note"]
+        method = "extrapolated" if method == "both" else "none"
     if method in ("both", "run_to_failure"):
         cl, reachable = _capacity_share(dd)
         def replay_stream() -> Iterator[np.ndarray]:
             return track(stream(), None, "writes", "replay to failure")
 
         b = lifetime_to_failure(replay_stream, new_leveler(), dd.death, endurance_scale=lt.endurance_scale,
-                                capacity_loss=cl)
+                                capacity_loss=cl, **counting)
         if not reachable:
             b.end_writes, b.reached_end = float("inf"), False
         if not dd.exact:           # strata do not hold the weakest copies
@@ -735,13 +980,14 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
         s["lifetime_replay_cycles"] = b.end_writes / lt.endurance_scale / leveling_cycle_writes(lv)
         if method == "both":
             s["lifetime_replay_over_extrapolated"] = (
-                rep["lifetime_replay_years"] / s["lifetime_years"] if s["lifetime_years"] > 0 else float("nan"))
+                rep["lifetime_replay_years"] / s["lifetime_years"] if (s["lifetime_years"] or 0) > 0 else None)
     mean = float(line_wear.mean())
     s.update({
         "leveling_write_overhead": wear.leveling_write_overhead,
         "wear_max_over_mean": wear.wear_max_over_mean,
         "wear_cov": wear.wear_cov,
-        "lifetime_cells_per_write": float(np.sum(np.broadcast_to(profile, (law.cells,)))),
+        "lifetime_cells_per_write": per_write,
+        **wear.ledger.summary(),
         "lifetime_death_sampling": "exact" if dd.exact else "strata",
         "lifetime_window_writes": wear.user_writes,
         "lifetime_window_line_writes_mean": mean,

@@ -134,7 +134,8 @@ def lifetime_extrapolated(wear: WearResult, death_wear: np.ndarray, *,
 def lifetime_to_failure(stream: Callable[[], Iterable[np.ndarray]], leveler: Leveler,
                         death_wear: np.ndarray, *, endurance_scale: float = 1.0,
                         capacity_loss: float = 0.0, move_weight: float = 1.0,
-                        max_user_writes: float | None = None) -> Lifetime:
+                        max_user_writes: float | None = None, cells_per_write: float = 1.0,
+                        wear_unit: float = 1.0) -> Lifetime:
     """Estimate (b): replay the stream until end of life with scaled endurance.
 
     Parameters
@@ -151,6 +152,9 @@ def lifetime_to_failure(stream: Callable[[], Iterable[np.ndarray]], leveler: Lev
         back, so they are comparable with (a).
     capacity_loss, move_weight:
         As for (a) and :class:`memsim.engine.wear.WearCounter`.
+    cells_per_write, wear_unit:
+        Cells a write or move programs, and cells per write equivalent of
+        ``death_wear`` (:class:`memsim.engine.wear.WearCounter`).
     max_user_writes:
         Stop here if not dead yet (default: 4 x the writes the memory could
         absorb with all of it worn evenly to death).
@@ -170,7 +174,8 @@ def lifetime_to_failure(stream: Callable[[], Iterable[np.ndarray]], leveler: Lev
     if max_user_writes is None:
         last = theta[:, -1]
         max_user_writes = 4.0 * float(last[np.isfinite(last)].sum()) + 1.0
-    wc = WearCounter(leveler, line_bits=1, move_weight=move_weight)
+    wc = WearCounter(leveler, line_bits=1, move_weight=move_weight,
+                     cells_per_write=cells_per_write, wear_unit=wear_unit)
     dead = np.zeros(P, dtype=np.int64)
     nxt = theta[:, 0].copy()
     cols = np.arange(S)
@@ -255,7 +260,7 @@ class LifetimeSetup:
     """
 
     endurance: EnduranceModel = field(default_factory=EnduranceModel)
-    ecp_entries: int = 0
+    ecp_entries: int = 6
     line_bits: int = 512
     line_bytes: int = 64
     cells: float | np.ndarray | None = None

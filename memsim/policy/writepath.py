@@ -17,6 +17,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from memsim.policy.ledger import WearLedger
 from memsim.policy.leveling.base import Leveler
 from memsim.policy.write.base import WriteScheme
 from memsim.policy.write.bits import add_cell_wear, popcount_rows
@@ -104,7 +105,11 @@ class WritePath:
         self.stored = data.initial(rng, n)
         self.flags = np.zeros((n, scheme.flag_cells), dtype=np.uint8)
         self.line_writes = np.zeros(n, dtype=np.int64)
-        self.line_cells = np.zeros(n, dtype=np.int64)       # cells programmed per line
+        # Every cell program of the run, per line and cause (lifetime reads it).
+        self.ledger = WearLedger(n)
+        # True when the engine decides a user write's cost at service (block
+        # erase, hints) and records it in the ledger then.
+        self.defer_user_wear = False
         # Per-cell counters of SLC programs (for MLC, wear is counted in
         # pulses per line, ``line_cells``).
         self.cell_wear = (np.zeros((n, self.line_bits + scheme.flag_cells), dtype=np.uint32)
@@ -112,6 +117,13 @@ class WritePath:
         self.user_writes = 0
         self.move_writes = 0
         self.meta_writes = 0
+
+    @property
+    def line_cells(self) -> np.ndarray:
+        """Cells programmed per ledger line, all causes (read-only copy)."""
+        out = self.ledger.line_cells()
+        out.setflags(write=False)
+        return out
 
     @property
     def n_physical(self) -> int:
@@ -173,15 +185,23 @@ class WritePath:
             if self.mlc is not None:
                 cost = self.mlc.cost(old, enc.stored, full=self.scheme.name == "full_line")
                 mlc_ns[ev], mlc_pj[ev] = cost.program_ns, cost.energy_pj
-                self.line_cells[d] += cost.pulses
+                self._count(d, is_user, cost.pulses)
                 continue
-            self.line_cells[d] += ns + nr
+            self._count(d, is_user, ns + nr)
             if self.cell_wear is not None:
                 add_cell_wear(self.cell_wear, d, enc.set_mask | enc.reset_mask, enc.flag_set | enc.flag_reset)
         self.user_writes += n
         self.move_writes += m
         self.meta_writes += mv.cost_writes
+        if mv.cost_writes:
+            # Table lines live outside the modeled lines; a full-line write each.
+            self.ledger.add("meta", None, mv.cost_writes * (self.line_bits + self.scheme.flag_cells))
         return WriteBatch(dst, n_set, n_reset, user, after, mv.cost_writes, mlc_ns, mlc_pj, ones)
+
+    def _count(self, lines: np.ndarray, is_user: np.ndarray, cells: np.ndarray) -> None:
+        if not self.defer_user_wear:
+            self.ledger.add("user", lines[is_user], cells[is_user])
+        self.ledger.add("move", lines[~is_user], cells[~is_user])
 
     def bit_profile(self) -> np.ndarray:
         """Programs per bit position (data cells then flag cells), summed over lines."""

@@ -8,6 +8,7 @@ read share) so tests can compare sampled moments with them.
 from __future__ import annotations
 
 from collections.abc import Callable, Iterator
+from math import gcd
 
 import numpy as np
 
@@ -29,7 +30,9 @@ class AddressPattern:
     def __init__(self, kind: str, footprint: int, rng: np.random.Generator, *,
                  zipf_exponent: float = 1.0, hot_fraction: float = 0.1,
                  hot_share: float = 0.9, stride_lines: int = 1, attack_line: int = 0,
-                 burst: int = 1000, hot_lines: int = 16) -> None:
+                 burst: int = 1000, hot_lines: int = 16, hot_layout: str = "scattered") -> None:
+        if hot_layout not in ("scattered", "contiguous"):
+            raise ConfigError("workload.hot_layout", repr(hot_layout), "scattered, contiguous")
         self.kind = kind
         self.footprint = footprint
         self.pos = 0
@@ -40,11 +43,20 @@ class AddressPattern:
             w = ranks ** -zipf_exponent
             self.cdf = np.cumsum(w / w.sum())
             # Hot ranks are scattered over the footprint, not packed in one
-            # bank (common practice for Zipf address streams).
-            self.rank_to_line = rng.permutation(footprint)
+            # bank (common practice for Zipf address streams); contiguous:
+            # rank k on line k, the hottest lines adjacent.
+            self.rank_to_line = (rng.permutation(footprint) if hot_layout == "scattered"
+                                 else np.arange(footprint))
         elif kind == "hotspot":
             self.n_hot = max(1, int(round(hot_fraction * footprint)))
             self.hot_lines = rng.permutation(footprint)
+            if hot_layout == "contiguous":
+                # One run of adjacent lines (what plain Start-Gap cannot
+                # move across quickly), at a random place.
+                lo = int(rng.integers(0, footprint - self.n_hot + 1))
+                run = np.arange(lo, lo + self.n_hot)
+                rest = self.hot_lines[(self.hot_lines < lo) | (self.hot_lines >= lo + self.n_hot)]
+                self.hot_lines = np.concatenate([run, rest])
         elif kind == "repeated_address":
             if not 0 <= attack_line < footprint:
                 raise ConfigError("workload.attack_line", repr(attack_line),
@@ -80,6 +92,34 @@ class AddressPattern:
         out = (self.pos + step * np.arange(n, dtype=np.int64)) % f
         self.pos = int((self.pos + step * n) % f)
         return out
+
+    def expected_shares(self) -> np.ndarray | None:
+        """Long-run share of accesses of every footprint line (sums to 1).
+
+        None for the attack patterns (their lines are drawn as they go).
+        """
+        f = self.footprint
+        if self.kind in ("uniform", "sequential"):
+            return np.full(f, 1.0 / f)
+        if self.kind == "zipf":
+            out = np.zeros(f)
+            out[self.rank_to_line] = np.diff(self.cdf, prepend=0.0)
+            return out / out.sum()
+        if self.kind == "hotspot":
+            out = np.zeros(f)
+            cold = self.hot_lines[self.n_hot:]
+            out[self.hot_lines[:self.n_hot]] = self.hot_share / self.n_hot
+            if cold.size:
+                out[cold] = (1.0 - self.hot_share) / cold.size
+            else:
+                out[self.hot_lines[f - 1]] += 1.0 - self.hot_share
+            return out
+        if self.kind == "strided":
+            g = gcd(self.stride, f)
+            out = np.zeros(f)
+            out[::g] = g / f
+            return out
+        return None
 
     def _attack(self, rng: np.random.Generator, n: int) -> np.ndarray:
         f = self.footprint
@@ -156,12 +196,25 @@ class SyntheticSource:
         self.address = address or AddressPattern(
             wl.pattern, footprint, rng, zipf_exponent=wl.zipf_exponent,
             hot_fraction=wl.hot_fraction, hot_share=wl.hot_share, stride_lines=wl.stride_lines,
-            attack_line=wl.attack_line, burst=wl.burst, hot_lines=wl.hot_lines)
+            attack_line=wl.attack_line, burst=wl.burst, hot_lines=wl.hot_lines,
+            hot_layout=wl.hot_layout)
         self.arrivals = Arrivals(wl.arrival, wl.interval_ns, wl.on_ns, wl.off_ns)
         self.footprint = footprint
 
     def expected_read_fraction(self) -> float:
         return self.wl.read_fraction
+
+    def expected_write_shares(self) -> np.ndarray | None:
+        """Long-run share of writes of every footprint line (None for attacks).
+
+        Reads and writes are drawn from the same addresses; a request of
+        ``size_lines`` lines also writes the lines after its first.
+        """
+        s = self.address.expected_shares()
+        if s is None:
+            return None
+        k = self.wl.size_lines
+        return sum(np.roll(s, j) for j in range(k)) / k if k > 1 else s
 
     def __iter__(self) -> Iterator[Chunk]:
         lead = getattr(self.wl, "hint_lead_ns", 0.0)

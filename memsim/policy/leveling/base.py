@@ -99,6 +99,18 @@ class Leveler:
         self.user_writes += logical.size
         return LevelResult(phys=logical.copy())
 
+    def scale_free(self) -> bool:
+        """True when the scheme's wear does not depend on how many lines it
+        maps (so its result on the modeled lines holds for the device).
+        Remapping schemes are not: their cycles grow with the line count."""
+        return False
+
+    def cycle_writes(self) -> float:
+        """User writes for the scheme to move every line once through its cycle
+        under uniform traffic; NaN when it has no fixed cycle (none, dynamic
+        schemes)."""
+        return float("nan")
+
     def state(self) -> dict:
         """Small, JSON-friendly view of the scheme's registers."""
         return {"user_writes": self.user_writes, "move_writes": self.move_writes}

@@ -91,6 +91,15 @@ class BitRotation(Leveler):
         self.move_writes = self.inner.move_writes
         return LevelResult(phys=res.phys, moves=res.moves, bit_offset=offsets)
 
+    def scale_free(self) -> bool:
+        """Rotation within a line does not depend on the line count; the remapper under it may."""
+        return self.inner.scale_free()
+
+    def cycle_writes(self) -> float:
+        """A full turn of the bit offset, or the inner remapper's cycle if longer."""
+        turn = self.line_bits // gcd(self.step, self.line_bits) * self.interval
+        return float(np.nanmax([turn, self.inner.cycle_writes()]))
+
     def state(self) -> dict:
         return {"scheme": self.name, "line_bits": self.line_bits,
                 "interval": self.interval, "step": self.step,

@@ -21,5 +21,8 @@ class NoLeveling(Leveler):
         self.user_writes += logical.size
         return LevelResult(phys=logical.copy())
 
+    def scale_free(self) -> bool:
+        return True
+
     def state(self) -> dict:
         return {"scheme": self.name, **super().state()}

@@ -58,6 +58,9 @@ class RandomizedStartGap(Leveler):
         self.move_writes = self.inner.move_writes
         return res
 
+    def cycle_writes(self) -> float:
+        return self.inner.cycle_writes()
+
     def state(self) -> dict:
         inner = self.inner.state()
         inner["scheme"] = self.name

@@ -98,6 +98,10 @@ class RegionStartGap(Leveler):
         self.move_writes += len(moves)
         return LevelResult(phys=phys, moves=moves)
 
+    def cycle_writes(self) -> float:
+        """Every region's Start rotation: ``N (n_max + 1) psi`` user writes."""
+        return float(self.n_logical) * (int(self.size.max()) + 1) * self.psi
+
     def state(self) -> dict:
         c = self.region_writes // self.psi
         start, gap = sg_registers(c, self.size)

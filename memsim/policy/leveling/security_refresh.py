@@ -145,6 +145,10 @@ class SecurityRefresh(Leveler):
         self.move_writes += src.size
         return LevelResult(phys=phys, moves=Moves(src, dst, aft, 0))
 
+    def cycle_writes(self) -> float:
+        """One key round of every region: ``n_physical * interval`` user writes."""
+        return float(self.n_physical) * self.interval
+
     def state(self) -> dict:
         steps = self.region_writes // self.interval
         rnd = steps >> self.shift

@@ -110,6 +110,11 @@ class StartGap(Leveler):
         self.move_writes += c.size
         return LevelResult(phys=phys, moves=Moves(src, dst, after, 0))
 
+    def cycle_writes(self) -> float:
+        """A full Start rotation: ``N (N + 1) psi`` user writes (Qureshi et al., MICRO 2009)."""
+        n = self.n_logical
+        return float(n) * (n + 1) * self.psi
+
     def state(self) -> dict:
         return {"scheme": self.name, "psi": self.psi, "start": self.start,
                 "gap": self.gap, "gap_moves": self.gap_moves, **super().state()}
