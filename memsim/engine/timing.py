@@ -34,6 +34,7 @@ from memsim.engine.stream import LatencyStream
 from memsim.policy.refresh import RefreshPlan
 from memsim.policy.write.bits import popcount_rows
 from memsim.policy.writepath import WritePath
+from memsim.seeds import stream
 from memsim.tech.array import AddressMap
 from memsim.tech.cell import CellTech
 from memsim.workload.chunk import Chunk
@@ -151,7 +152,7 @@ class TimingEngine:
         # A plain list while running (cheap item updates); numpy at the end.
         self.totals = TimingTotals(bank_busy_ns=[0.0] * self.amap.total_banks)
         self.plan = refresh
-        self.rng = rng if rng is not None else np.random.default_rng(cfg.run.seed + 1)
+        self.rng = rng if rng is not None else stream(cfg.run.seed, "refresh")
         self.agent: RefreshAgent | None = None
         c, p = cfg.controller, cfg.power
         # Cells one round may drive: the bank's budget, or less if the shared

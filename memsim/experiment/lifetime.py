@@ -76,6 +76,7 @@ from memsim.metrics.lifetime import (
 from memsim.metrics.result import RunResult
 from memsim.policy.leveling.base import Leveler
 from memsim.policy.writepath import WritePath
+from memsim.seeds import stream as named_stream
 from memsim.tech.endurance import EnduranceModel
 from memsim.units import GIB
 from memsim.workload.attacks import ATTACKS
@@ -475,12 +476,6 @@ def _endurance(cfg: RunConfig) -> EnduranceModel:
     return EnduranceModel(c.endurance_mean, c.endurance_cov, c.endurance_dist)
 
 
-def _seeds(seed: int) -> dict[str, np.random.SeedSequence]:
-    # Fixed spawn keys: timing runs and `lifetime` of one config draw the same cells.
-    names = ("stream", "leveler", "profile", "endurance")
-    return {n: np.random.SeedSequence(seed, spawn_key=(i,)) for i, n in enumerate(names)}
-
-
 def _ideal_years(cfg: RunConfig, scale: DeviceScale, rate: float) -> float:
     """Perfectly spread full-line writes over the whole device: endurance x capacity / rate."""
     if rate <= 0:
@@ -571,7 +566,7 @@ def lifetime_fields(cfg: RunConfig, path: WritePath, write_bytes_per_s: float) -
         return out
     profile = rotated_profile(path_profile(path), path.line_bits, lv)
     law = DeathLaw(_endurance(cfg), profile_cells(path), cfg.lifetime.ecp_entries, profile)
-    rng = np.random.default_rng(_seeds(cfg.run.seed)["endurance"])
+    rng = named_stream(cfg.run.seed, "endurance")
     dd = device_deaths(law, rng, wear / user, scale.copies, scale.device_lines, cfg.lifetime.capacity_loss)
     result = WearResult(path.line_writes, np.zeros_like(path.line_writes), user, path.meta_writes,
                         np.zeros(1))
@@ -585,12 +580,11 @@ def lifetime_fields(cfg: RunConfig, path: WritePath, write_bytes_per_s: float) -
 # ---------------------------------------------------------------- wear-engine runs
 
 
-def write_stream(cfg: RunConfig, seed: np.random.SeedSequence,
-                 chunk: int = _STREAM_CHUNK) -> Iterator[np.ndarray]:
+def write_stream(cfg: RunConfig, chunk: int = _STREAM_CHUNK) -> Iterator[np.ndarray]:
     """Endless logical line indices of the workload's writes, in order.
 
     The workload's source without arrival times (they do not change which
-    lines are written); the same seed gives the same stream.
+    lines are written); stream ``requests`` of ``run.seed``.
     """
     if cfg.workload.pattern == "trace":
         # A trace is finite: the replay (method b) calls this again to loop it.
@@ -601,7 +595,7 @@ def write_stream(cfg: RunConfig, seed: np.random.SeedSequence,
     # No hints: they name no new line, and without arrival times they would be
     # held back for ever.
     wl = cfg.workload.model_copy(update={"arrival": "closed", "requests": 1 << 62, "hint_lead_ns": 0.0})
-    source = SyntheticSource(wl, cfg.footprint, np.random.default_rng(seed), chunk)
+    source = SyntheticSource(wl, cfg.footprint, named_stream(cfg.run.seed, "requests"), chunk)
     for c in source:
         yield c.line[c.op == WRITE]
 
@@ -679,7 +673,6 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
         raise ConfigError("workload.read_fraction", repr(cfg.workload.read_fraction),
                           "less than 1: lifetime needs writes")
     t0 = time.perf_counter()
-    seeds = _seeds(cfg.run.seed)
     rate, source = _write_rate(cfg, write_rate_gbps)
     window = cfg.lifetime.window_writes or cfg.workload.requests
     if cfg.workload.pattern == "trace" and not cfg.lifetime.window_writes:
@@ -691,17 +684,17 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
     lt = cfg.lifetime
 
     def stream() -> Iterator[np.ndarray]:
-        return write_stream(cfg, seeds["stream"])
+        return write_stream(cfg)
 
     def new_leveler() -> Leveler:
-        return build_leveler(cfg, np.random.default_rng(seeds["leveler"]))
+        return build_leveler(cfg, named_stream(cfg.run.seed, "leveler"))
 
-    sample = sample_profile(cfg, np.random.default_rng(seeds["profile"]), min(window, _PROFILE_WRITES))
+    sample = sample_profile(cfg, named_stream(cfg.run.seed, "profile"), min(window, _PROFILE_WRITES))
     lv = new_leveler()
     wear = run_wear(track(stream(), window, "writes", "wear window"), lv, max_user_writes=window)
     profile = rotated_profile(path_profile(sample), sample.line_bits, lv)
     law = DeathLaw(_endurance(cfg), profile_cells(sample), lt.ecp_entries, profile)
-    dd = device_deaths(law, np.random.default_rng(seeds["endurance"]), wear.line_wear / wear.user_writes,
+    dd = device_deaths(law, named_stream(cfg.run.seed, "endurance"), wear.line_wear / wear.user_writes,
                        scale.copies, scale.device_lines, lt.capacity_loss)
     ideal_years = _ideal_years(cfg, scale, rate)
     line_wear = wear.line_wear
