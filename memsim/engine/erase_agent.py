@@ -57,7 +57,6 @@ class EraseAgent:
         self.erase_ns = -(-cells // per) * pulse_ns
         self.erase_pj = cells * pulse_pj
         self.erase_ua = min(per, cells) * ua
-        self.erase_cells = cells
         self.line_writes = [np.zeros(p.n_physical, dtype=np.int64) for p in self.pools]
         self.erases = 0
         self.jobs: list[dict | None] = [None] * nb     # cleaning job in progress per bank
