@@ -44,7 +44,7 @@ def test_keys_do_not_depend_on_the_process() -> None:
     code = ("from memsim.seeds import stream; "
             "print(stream(1, 'requests').integers(0, 2**32, 3).tolist())")
     outs = {subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True,
-                           env={**os.environ, "PYTHONHASHSEED": h}).stdout.strip() for h in ("1", "2")}
+                           env={**os.environ, "PYTHONHASHSEED": h, "PYTHONPATH": str(PACKAGE.parent)}).stdout.strip() for h in ("1", "2")}
     assert outs == {str(stream(1, "requests").integers(0, 2**32, 3).tolist())}
 
 
