@@ -58,7 +58,6 @@ class EraseAgent:
         self.erase_ns = -(-cells // per) * pulse_ns
         self.erase_pj = cells * pulse_pj
         self.erase_ua = min(per, cells) * ua
-        self.erase_cells = cells
         self.line_writes = [np.zeros(p.n_physical, dtype=np.int64) for p in self.pools]
         # The ledger's lines are the pools' physical lines, bank after bank.
         self.base = np.cumsum([0] + [p.n_physical for p in self.pools])[:-1].tolist()

@@ -128,7 +128,6 @@ def prepare_ops(eng, chunk: Chunk) -> OpColumns:
     tot.move_cells += int(wb.n_set[moves].sum() + wb.n_reset[moves].sum())
     tot.move_writes += int(moves.sum())
     tot.meta_writes += wb.meta_writes
-    tot.user_write_ns += float(service[~moves].sum())
     if eng.agent is not None and not eng.closed:
         eng.agent.note_writes(chunk.time_ns[w_idx[wb.after]] if w_idx.size else np.empty(0), wb.phys)
         if eng.agent.plan.policy == "none" and chunk.time_ns.size:

@@ -52,10 +52,8 @@ class RefreshAgent:
         self.refreshes = 0
         self.per_line = np.zeros(n, dtype=np.int64)     # refreshes of each physical line
         self.rber_sum = 0.0
-        self.busy_ns = 0.0
         self.energy_pj = 0.0
         self.cells = 0
-        self.scrub_reads = 0
 
     # ----------------------------------------------------------- line ages
     def note_writes(self, t: np.ndarray, phys: np.ndarray) -> None:
@@ -142,6 +140,5 @@ class RefreshAgent:
         self.catch_up(now)
         plan = self.plan
         rber = float(plan.rber(plan.device_age_s(now - self.last[phys])))
-        self.scrub_reads += 1
         if rber > 0 and self.rng.binomial(plan.bits_per_line, rber) > plan.scrub_errors:
             self._queue_refresh(b, np.array([phys]), now)

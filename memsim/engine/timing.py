@@ -34,6 +34,7 @@ from memsim.engine.stream import LatencyStream
 from memsim.policy.refresh import RefreshPlan
 from memsim.policy.write.bits import popcount_rows
 from memsim.policy.writepath import WritePath
+from memsim.seeds import stream
 from memsim.tech.array import AddressMap
 from memsim.tech.cell import CellTech
 from memsim.workload.chunk import Chunk
@@ -70,7 +71,6 @@ class TimingTotals:
     user_reset_cells: int = 0
     move_cells: int = 0
     bank_busy_ns: np.ndarray = field(default_factory=lambda: np.empty(0))
-    user_write_ns: float = 0.0       # sum of write service (program) times, ns
     refresh_busy_ns: float = 0.0     # bank time spent on refresh operations, ns
     power_wait_ns: float = 0.0       # time writes waited for programming current, ns
     cancellations: int = 0
@@ -78,7 +78,6 @@ class TimingTotals:
     cancelled_cells: int = 0         # cells programmed by aborted writes
     pauses: int = 0
     presets: int = 0                 # lines pre-programmed from hints
-    presets_repeated: int = 0        # of them, lines already pre-programmed
     preset_pj: float = 0.0
     preset_cells: int = 0
     hint_hits: int = 0               # user writes that found their line pre-programmed
@@ -151,7 +150,7 @@ class TimingEngine:
         # A plain list while running (cheap item updates); numpy at the end.
         self.totals = TimingTotals(bank_busy_ns=[0.0] * self.amap.total_banks)
         self.plan = refresh
-        self.rng = rng if rng is not None else np.random.default_rng(cfg.run.seed + 1)
+        self.rng = rng if rng is not None else stream(cfg.run.seed, "refresh")
         self.agent: RefreshAgent | None = None
         c, p = cfg.controller, cfg.power
         # Cells one round may drive: the bank's budget, or less if the shared
@@ -603,8 +602,6 @@ class TimingEngine:
         if again is not None:
             self.wq[b].appendleft((prep, again))
         elif idx == PRESET:
-            if phys in self.preset:
-                tot.presets_repeated += 1
             self.preset[phys] = True
             tot.presets += 1
             tot.preset_pj += pj

@@ -25,6 +25,7 @@ from memsim.config import RunConfig
 from memsim.errors import ConfigError
 from memsim.experiment.cache import RunCache
 from memsim.experiment.executors import Task, check_workers, make_executor
+from memsim.seeds import stream_seed
 
 # Seeds come from the batch's replications and results always go to its own folder.
 RESERVED: tuple[str, ...] = ("run.seed", "run.name", "run.out_dir")
@@ -62,12 +63,12 @@ def check_key(key: str, where: str, reserved_why: str = "") -> None:
 
 
 def derive_seeds(base_seed: int, n: int) -> list[int]:
-    """Seeds of replications ``0 .. n-1``, each from ``SeedSequence(base_seed, spawn_key=(i,))``.
+    """Seeds of replications ``0 .. n-1``: sub-stream ``i`` of stream ``replicas`` of ``base_seed``.
 
     Replication ``i`` gets the same seed whatever ``n`` is, and the seeds are
     well apart even for neighbouring base seeds.
     """
-    return [int(np.random.SeedSequence(base_seed, spawn_key=(i,)).generate_state(1)[0]) for i in range(n)]
+    return [int(stream_seed(base_seed, "replicas", i).generate_state(1)[0]) for i in range(n)]
 
 
 def metric_hint(missing: Sequence[str], known: Sequence[str]) -> str:

@@ -11,6 +11,7 @@ from memsim.experiment.names import check_registered
 from memsim.policy.leveling import Leveler, leveler_names, leveler_params, make_leveler
 from memsim.policy.write import SCHEMES, make_scheme
 from memsim.policy.writepath import WritePath
+from memsim.seeds import stream
 from memsim.tech.mlc_write import MlcProgrammer
 from memsim.tech.models import mlc_cell
 from memsim.tech.technology import uses_verify
@@ -78,36 +79,47 @@ def check_names(cfg: RunConfig, where_prefix: str = "") -> None:
                           "a per-cell scheme with multi-level cells (block_erase models SLC)")
 
 
-def build_path(cfg: RunConfig, rng: np.random.Generator) -> WritePath:
+def build_path(cfg: RunConfig, rng: np.random.Generator | None = None) -> WritePath:
+    """The run's write path: leveler, write scheme, data model and (multi-level cells) programmer.
+
+    Parameters
+    ----------
+    cfg:
+        The run config.
+    rng:
+        None (what runs use): each part draws from its own named stream of
+        ``run.seed`` (:mod:`memsim.seeds`: ``leveler``, ``array_content``,
+        ``mlc_program``), so a part's draws do not depend on which other
+        parts are on.  A Generator: every part draws from it (a part built
+        by hand, e.g. the lifetime's profile pass).
+    """
+    def rng_of(name: str) -> np.random.Generator:
+        return rng if rng is not None else stream(cfg.run.seed, name)
+
     # Spare lines a leveler needs (e.g. the gap line) are physical lines
     # beyond the footprint; the address map places them like any other.
-    leveler = build_leveler(cfg, rng)
+    leveler = build_leveler(cfg, rng_of("leveler"))
     scheme = make_scheme(cfg.write.scheme, cfg.array.line_bytes, cfg.write.word_bits)
     w = cfg.workload
     data = DataModel(w.data, cfg.array.line_bytes, w.flip_fraction, w.one_fraction)
     mlc = None
     if uses_verify(cfg):
-        mlc = MlcProgrammer(mlc_cell(cfg), cfg.array.bank_budget_ua, cfg.cell.reset_ua, rng)
-    return WritePath(leveler, scheme, data, rng, mlc=mlc)
+        mlc = MlcProgrammer(mlc_cell(cfg), cfg.array.bank_budget_ua, cfg.cell.reset_ua, rng_of("mlc_program"))
+    return WritePath(leveler, scheme, data, rng_of("array_content"), mlc=mlc)
 
 
 # ---------------------------------------------------------------- request source
 
-# Spawn keys of the source's own random streams.  The source never draws
-# from the write path's generator: a trace written from the source and
-# replayed then leaves the write path's draws (initial content, leveler
-# keys, MLC verify) exactly as the generator's run made them, so the two
-# runs agree number for number.
-_REQUEST_STREAM = 101
-_CONTENT_STREAM = 102
+# The source draws from its own named streams, never from the write path's:
+# a trace written from the source and replayed then leaves the write path's
+# draws (initial content, leveler keys, MLC verify) exactly as the
+# generator's run made them, so the two runs agree number for number.
 _CONTENT_BLOCK = 4096        # lines of write content drawn at a time
 
 
 def source_streams(seed: int) -> tuple[np.random.Generator, np.random.Generator]:
-    """Generators of a run's requests and of its write content, from ``run.seed``."""
-    req, content = (np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(k,)))
-                    for k in (_REQUEST_STREAM, _CONTENT_STREAM))
-    return req, content
+    """Generators of a run's requests and of its write content: streams ``requests`` and ``write_content``."""
+    return stream(seed, "requests"), stream(seed, "write_content")
 
 
 class _Content:

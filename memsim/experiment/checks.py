@@ -14,6 +14,7 @@ from memsim.config import RunConfig
 from memsim.experiment.build import build_leveler, check_names
 from memsim.policy.erase import BlockPool
 from memsim.policy.write import SCHEMES
+from memsim.seeds import stream
 from memsim.tech.array import AddressMap
 from memsim.tech.models import drift_params, mlc_cell
 from memsim.workload.synthetic import AddressPattern
@@ -33,10 +34,10 @@ def check_parts(cfg: RunConfig) -> None:
         drift_params(cfg).acceleration(cfg.refresh.temperature_k)
     w = cfg.workload
     if w.pattern in ("repeated_address", "hot_set"):    # cheap to build; their lines must fit the footprint
-        AddressPattern(w.pattern, cfg.footprint, np.random.default_rng(0), attack_line=w.attack_line,
+        AddressPattern(w.pattern, cfg.footprint, stream(cfg.run.seed, "requests"), attack_line=w.attack_line,
                        hot_lines=w.hot_lines)
     if cfg.footprint <= _LEVELER_CHECK_LINES:
-        build_leveler(cfg, np.random.default_rng(0))
+        build_leveler(cfg, stream(cfg.run.seed, "leveler"))
     if SCHEMES[cfg.write.scheme].out_of_place:
         a, e = cfg.array, cfg.erase
         amap = AddressMap(a.channels, a.banks, a.row_lines, a.bank_hash)

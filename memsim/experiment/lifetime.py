@@ -106,6 +106,7 @@ from memsim.policy.leveling.base import Leveler
 from memsim.policy.write import SCHEMES
 from memsim.policy.write.bits import popcount_rows
 from memsim.policy.writepath import WritePath
+from memsim.seeds import stream as named_stream
 from memsim.tech.endurance import EnduranceModel
 from memsim.units import GIB
 from memsim.workload.attacks import ATTACKS
@@ -506,12 +507,6 @@ def _endurance(cfg: RunConfig) -> EnduranceModel:
     return EnduranceModel(c.endurance_mean, c.endurance_cov, c.endurance_dist)
 
 
-def _seeds(seed: int) -> dict[str, np.random.SeedSequence]:
-    # Fixed spawn keys: timing runs and `lifetime` of one config draw the same cells.
-    names = ("stream", "leveler", "profile", "endurance")
-    return {n: np.random.SeedSequence(seed, spawn_key=(i,)) for i, n in enumerate(names)}
-
-
 def _ideal_years(cfg: RunConfig, scale: DeviceScale, rate: float) -> float:
     """Perfectly spread full-line writes over the whole device: endurance x capacity / rate."""
     if rate <= 0:
@@ -661,7 +656,7 @@ def lifetime_fields(cfg: RunConfig, path: WritePath, write_bytes_per_s: float) -
         out["lifetime_note"] = note
         return out
     law = DeathLaw(_endurance(cfg), n_cells, cfg.lifetime.ecp_entries, profile)
-    rng = np.random.default_rng(_seeds(cfg.run.seed)["endurance"])
+    rng = named_stream(cfg.run.seed, "endurance")
     dd = device_deaths(law, rng, wear / user, scale.copies, scale.device_lines, cfg.lifetime.capacity_loss)
     result = WearResult(wear, np.zeros_like(wear), user, path.meta_writes, np.zeros(1))
     life = extrapolate(result, dd)
@@ -676,8 +671,7 @@ def lifetime_fields(cfg: RunConfig, path: WritePath, write_bytes_per_s: float) -
 
 
 def _start_gap_at_device(cfg: RunConfig, lv: Leveler, law: DeathLaw, chunks: Iterator[np.ndarray],
-                         window: int, scale: DeviceScale, seed: np.random.SeedSequence,
-                         stream_seed: np.random.SeedSequence) -> Lifetime:
+                         window: int, scale: DeviceScale) -> Lifetime:
     """Estimate (a) for plain Start-Gap evaluated at device size (:mod:`memsim.engine.device_wear`).
 
     The workload's share of writes per logical line is the synthetic
@@ -688,13 +682,13 @@ def _start_gap_at_device(cfg: RunConfig, lv: Leveler, law: DeathLaw, chunks: Ite
     shares = None
     if cfg.workload.pattern != "trace":
         wl = cfg.workload.model_copy(update={"arrival": "closed", "requests": 1 << 62})
-        shares = SyntheticSource(wl, cfg.footprint, np.random.default_rng(stream_seed)).expected_write_shares()
+        shares = SyntheticSource(wl, cfg.footprint, named_stream(cfg.run.seed, "requests")).expected_write_shares()
     if shares is None:
         counts = run_wear(chunks, Leveler(cfg.footprint), max_user_writes=window)
         shares = counts.user_line_writes / max(counts.user_writes, 1)
     rates = np.zeros(cfg.array.lines)
     rates[: cfg.footprint] = shares
-    dd = device_deaths(law, np.random.default_rng(seed), rates, scale.copies, scale.device_lines,
+    dd = device_deaths(law, named_stream(cfg.run.seed, "endurance"), rates, scale.copies, scale.device_lines,
                        cfg.lifetime.capacity_loss)
     needed = dd.needed
     end, first = start_gap_device_lifetime(rates, dd.death, dd.weight, needed, lv.psi, scale.copies)
@@ -707,12 +701,12 @@ def _start_gap_at_device(cfg: RunConfig, lv: Leveler, law: DeathLaw, chunks: Ite
 
 
 def _device_rates(cfg: RunConfig, chunks: Iterator[np.ndarray], window: int,
-                  stream_seed: np.random.SeedSequence) -> np.ndarray:
+                  ) -> np.ndarray:
     """Share of writes of every modeled logical line (expected, or counted for a trace)."""
     shares = None
     if cfg.workload.pattern != "trace":
         wl = cfg.workload.model_copy(update={"arrival": "closed", "requests": 1 << 62})
-        shares = SyntheticSource(wl, cfg.footprint, np.random.default_rng(stream_seed)).expected_write_shares()
+        shares = SyntheticSource(wl, cfg.footprint, named_stream(cfg.run.seed, "requests")).expected_write_shares()
     if shares is None:
         counts = run_wear(chunks, Leveler(cfg.footprint), max_user_writes=window)
         shares = counts.user_line_writes / max(counts.user_writes, 1)
@@ -722,17 +716,17 @@ def _device_rates(cfg: RunConfig, chunks: Iterator[np.ndarray], window: int,
 
 
 def _security_refresh_at_device(cfg: RunConfig, lv: Leveler, law: DeathLaw, chunks: Iterator[np.ndarray],
-                                window: int, scale: DeviceScale, seeds: dict) -> Lifetime:
+                                window: int, scale: DeviceScale) -> Lifetime:
     """Estimate (a) for Security Refresh at device size (steady state over many key rounds).
 
     NaN (no estimate) when one round can put more than 1% of the weakest
     line's death wear on one physical line: then the steady state does not
     hold before the first death.
     """
-    rates = _device_rates(cfg, chunks, window, seeds["stream"])
+    rates = _device_rates(cfg, chunks, window)
     blocks = min(lv.region_lines, cfg.array.lines)
     steady = security_refresh_device_rates(rates, blocks, lv.interval)
-    dd = device_deaths(law, np.random.default_rng(seeds["endurance"]), steady, scale.copies,
+    dd = device_deaths(law, named_stream(cfg.run.seed, "endurance"), steady, scale.copies,
                        scale.device_lines, cfg.lifetime.capacity_loss)
     if security_refresh_round_load(rates, blocks, lv.interval) > 0.01 * float(dd.first.min()):
         nan = float("nan")
@@ -744,10 +738,10 @@ def _security_refresh_at_device(cfg: RunConfig, lv: Leveler, law: DeathLaw, chun
 
 def _randomized_start_gap_at_device(cfg: RunConfig, lv: Leveler, law: DeathLaw,
                                     chunks: Iterator[np.ndarray], window: int, scale: DeviceScale,
-                                    stream_seed: np.random.SeedSequence) -> Lifetime:
+                                    ) -> Lifetime:
     """Estimate (a) for randomized Start-Gap at device size (an approximation,
     :func:`memsim.engine.device_wear.randomized_start_gap_device_lifetime`)."""
-    rates = _device_rates(cfg, chunks, window, stream_seed)
+    rates = _device_rates(cfg, chunks, window)
     needed = int(np.floor(cfg.lifetime.capacity_loss * scale.device_lines)) + 1
     psi = lv.inner.psi
     end = randomized_start_gap_device_lifetime(rates, law.cdf, needed, psi, scale.copies)
@@ -757,12 +751,11 @@ def _randomized_start_gap_at_device(cfg: RunConfig, lv: Leveler, law: DeathLaw,
                     int(scale.device_lines))
 
 
-def write_stream(cfg: RunConfig, seed: np.random.SeedSequence,
-                 chunk: int = _STREAM_CHUNK) -> Iterator[np.ndarray]:
+def write_stream(cfg: RunConfig, chunk: int = _STREAM_CHUNK) -> Iterator[np.ndarray]:
     """Endless logical line indices of the workload's writes, in order.
 
     The workload's source without arrival times (they do not change which
-    lines are written); the same seed gives the same stream.
+    lines are written); stream ``requests`` of ``run.seed``.
     """
     if cfg.workload.pattern == "trace":
         # A trace is finite: the replay (method b) calls this again to loop it.
@@ -773,7 +766,7 @@ def write_stream(cfg: RunConfig, seed: np.random.SeedSequence,
     # No hints: they name no new line, and without arrival times they would be
     # held back for ever.
     wl = cfg.workload.model_copy(update={"arrival": "closed", "requests": 1 << 62, "hint_lead_ns": 0.0})
-    source = SyntheticSource(wl, cfg.footprint, np.random.default_rng(seed), chunk)
+    source = SyntheticSource(wl, cfg.footprint, named_stream(cfg.run.seed, "requests"), chunk)
     for c in source:
         yield c.line[c.op == WRITE]
 
@@ -851,7 +844,6 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
         raise ConfigError("workload.read_fraction", repr(cfg.workload.read_fraction),
                           "less than 1: lifetime needs writes")
     t0 = time.perf_counter()
-    seeds = _seeds(cfg.run.seed)
     rate, source = _write_rate(cfg, write_rate_gbps)
     window = cfg.lifetime.window_writes or cfg.workload.requests
     if cfg.workload.pattern == "trace" and not cfg.lifetime.window_writes:
@@ -863,7 +855,7 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
     lt = cfg.lifetime
 
     def stream() -> Iterator[np.ndarray]:
-        return write_stream(cfg, seeds["stream"])
+        return write_stream(cfg)
 
     def new_leveler() -> Leveler:
         if SCHEMES[cfg.write.scheme].out_of_place:
@@ -871,9 +863,9 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
             pool = BlockPool(cfg.footprint, e.block_lines, e.spare_fraction, e.init_state, e.victim,
                              e.low_watermark, e.fallback)
             return PoolLeveler(pool, cfg.array.line_bytes * 8)     # bulk init drives every data cell
-        return build_leveler(cfg, np.random.default_rng(seeds["leveler"]))
+        return build_leveler(cfg, named_stream(cfg.run.seed, "leveler"))
 
-    sample = sample_profile(cfg, np.random.default_rng(seeds["profile"]), min(window, _PROFILE_WRITES))
+    sample = sample_profile(cfg, named_stream(cfg.run.seed, "profile"), min(window, _PROFILE_WRITES))
     lv = new_leveler()
     profile = rotated_profile(path_profile(sample), sample.line_bits, lv)
     n_cells = profile_cells(sample)
@@ -883,7 +875,7 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
     counting = {"cells_per_write": cells_per_write, "wear_unit": per_write}
     wear = run_wear(track(stream(), window, "writes", "wear window"), lv, max_user_writes=window, **counting)
     law = DeathLaw(_endurance(cfg), n_cells, lt.ecp_entries, profile)
-    dd = device_deaths(law, np.random.default_rng(seeds["endurance"]), wear.line_wear / wear.user_writes,
+    dd = device_deaths(law, named_stream(cfg.run.seed, "endurance"), wear.line_wear / wear.user_writes,
                        scale.copies, scale.device_lines, lt.capacity_loss)
     ideal_years = _ideal_years(cfg, scale, rate)
     line_wear = wear.line_wear
@@ -909,14 +901,14 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
     if method in ("both", "extrapolated"):
         if device_scale and lv.name == "none":
             # No remapping: each line wears at its own expected share (no window noise).
-            rates = _device_rates(cfg, stream(), window, seeds["stream"])
-            nd = device_deaths(law, np.random.default_rng(seeds["endurance"]), rates, scale.copies,
+            rates = _device_rates(cfg, stream(), window)
+            nd = device_deaths(law, named_stream(cfg.run.seed, "endurance"), rates, scale.copies,
                                scale.device_lines, lt.capacity_loss)
             a = extrapolate(WearResult(rates, np.zeros_like(rates), 1, 0, np.zeros(1)), nd)
             a.method = "device_scale"
         elif device_scale and lv.name == "region_start_gap":
-            rates = _device_rates(cfg, stream(), window, seeds["stream"])
-            rd = device_deaths(law, np.random.default_rng(seeds["endurance"]), rates, scale.copies,
+            rates = _device_rates(cfg, stream(), window)
+            rd = device_deaths(law, named_stream(cfg.run.seed, "endurance"), rates, scale.copies,
                                scale.device_lines, 0.0)
             q, rem = divmod(cfg.array.lines, lv.regions)     # the device's regions span every line
             sizes = np.where(np.arange(lv.regions) < rem, q + 1, q)
@@ -924,19 +916,18 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
             t = scale.time_scale
             a = Lifetime("device_scale", w / t, w / t, 1 if np.isfinite(w) else 0, int(scale.device_lines))
         elif device_scale and lv.name == "security_refresh":
-            a = _security_refresh_at_device(cfg, lv, law, stream(), window, scale, seeds)
+            a = _security_refresh_at_device(cfg, lv, law, stream(), window, scale)
             if np.isnan(a.end_writes) and scale.copies == 1:
                 a = extrapolate(wear, dd)       # the modeled leveler is the device
                 s["lifetime_leveling_scale"] = "modeled"
         elif device_scale and lv.name == "randomized_start_gap":
-            a = _randomized_start_gap_at_device(cfg, lv, law, stream(), window, scale, seeds["stream"])
+            a = _randomized_start_gap_at_device(cfg, lv, law, stream(), window, scale)
             if np.isnan(a.end_writes) and scale.copies == 1:
                 # One modeled line per device line: the modeled leveler is the device.
                 a = extrapolate(wear, dd)
                 s["lifetime_leveling_scale"] = "modeled"
         elif device_scale:
-            a = _start_gap_at_device(cfg, lv, law, stream(), window, scale, seeds["endurance"],
-                                     seeds["stream"])
+            a = _start_gap_at_device(cfg, lv, law, stream(), window, scale)
         else:
             a = extrapolate(wear, dd)
         s.update(_years_fields("lifetime", a, *args))

@@ -8,16 +8,16 @@ from __future__ import annotations
 import sys
 from collections.abc import Iterable, Iterator
 from contextlib import contextmanager
-from typing import TypeVar
+from typing import TextIO, TypeVar
 
 T = TypeVar("T")
 
 DELAY_S = 3.0        # work shorter than this shows no bar
-_stream = None       # where bars go while shown (None: no bars)
+_stream: TextIO | None = None       # where bars go while shown (None: no bars)
 
 
 @contextmanager
-def shown(stream=None, force: bool = False) -> Iterator[None]:
+def shown(stream: TextIO | None = None, force: bool = False) -> Iterator[None]:
     """Show progress bars inside this block if ``stream`` (stderr) is a terminal."""
     global _stream
     stream = stream if stream is not None else sys.stderr

@@ -25,6 +25,7 @@ from memsim.metrics.result import RunResult
 from memsim.policy.refresh import check_refresh_load, plan_refresh
 from memsim.policy.write.bits import popcount_rows
 from memsim.policy.writepath import WritePath
+from memsim.seeds import stream
 from memsim.tech.technology import summary_fields as technology_summary
 from memsim.workload.chunk import READ, WRITE
 
@@ -107,8 +108,8 @@ def refresh_demand(engine: TimingEngine, sample: int = 4096) -> tuple[np.ndarray
     The same service time as :meth:`TimingEngine.refresh_cost` (read, then
     reprogram the drifting cells) over the lines' initial content, without
     its side effects: a sample of at most ``sample`` lines, and a copy of the
-    multi-level writer with its own random stream so the run's draws stay
-    as they are.
+    multi-level writer with its own random stream (``refresh_demand``) so
+    the run's draws stay as they are.
     """
     path, cell = engine.path, engine.cell
     n = path.n_physical
@@ -118,7 +119,7 @@ def refresh_demand(engine: TimingEngine, sample: int = 4096) -> tuple[np.ndarray
     stored = path.stored[lines]
     if path.mlc is not None:
         mlc = copy.copy(path.mlc)
-        mlc.rng = np.random.default_rng(0)
+        mlc.rng = stream(engine.cfg.run.seed, "refresh_demand")
         program = mlc.cost(np.zeros_like(stored), stored).program_ns
     else:
         n_reset = engine.line_bits - popcount_rows(stored)
@@ -191,14 +192,13 @@ def expected_span_ns(cfg: RunConfig) -> float | None:
 
 def _simulate(cfg: RunConfig) -> RunResult:
     t0 = time.perf_counter()
-    rng = np.random.default_rng(cfg.run.seed)
-    path = build_path(cfg, rng)
-    source = build_source(cfg, rng)
+    path = build_path(cfg)
+    source = build_source(cfg)
     try:
         plan = plan_refresh(cfg)
         total = cfg.workload.requests if cfg.workload.pattern != "trace" else None
         chunks = track(source, total, "req", f"run {cfg.run.name}")
-        engine = make_engine(cfg, chunks, path, plan, np.random.default_rng([cfg.run.seed, 1]))
+        engine = make_engine(cfg, chunks, path, plan, stream(cfg.run.seed, "refresh"))
         if plan.active:
             lines_per_bank, service = refresh_demand(engine)
             check_refresh_load(plan, lines_per_bank, service, expected_span_ns(cfg))

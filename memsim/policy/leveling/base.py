@@ -66,7 +66,9 @@ class Leveler:
     n_logical:
         Number of logical lines the workload addresses.
     rng:
-        Owned random generator (keys, randomizers) seeded from the config.
+        Owned random generator of the keys and randomizers (stream
+        ``leveler`` of ``run.seed``).  None only for a scheme that draws
+        nothing; reading :attr:`rng` then raises ``ValueError``.
 
     Attributes
     ----------
@@ -80,9 +82,17 @@ class Leveler:
     def __init__(self, n_logical: int, rng: np.random.Generator | None = None) -> None:
         self.n_logical = int(n_logical)
         self.n_physical = int(n_logical)
-        self.rng = rng if rng is not None else np.random.default_rng(0)
+        self._rng = rng
         self.user_writes = 0       # user writes seen so far
         self.move_writes = 0       # extra line writes made so far
+
+    @property
+    def rng(self) -> np.random.Generator:
+        # No fallback generator: a hidden fixed seed would give every run the same keys.
+        if self._rng is None:
+            raise ValueError(f"leveler {self.name!r} draws random keys: pass a Generator "
+                             "(memsim.seeds.stream(run.seed, 'leveler'))")
+        return self._rng
 
     def lookup(self, logical: np.ndarray) -> np.ndarray:
         """Current physical line of each logical line (no state change)."""
