@@ -42,6 +42,8 @@ CONFIGS = [
     ('[cell]\npreset = "pcm_mlc2"\npv_max_iterations = 1e300\n', "run", "cell.pv_max_iterations"),
     ("[array]\nrow_lines = 1000000000000000000000000000000\n", "run", "array.row_lines"),
     ("[array]\nbank_budget_ua = 1e300\n", "run", "array.bank_budget_ua"),
+    ('[array]\nmapping = "row"\n', "run", "array.mapping"),
+    ('[array]\nmapping = "bank"\n', "run", "array.mapping"),
     ("[power]\nbudget_ua = 1e300\n", "run", "power.budget_ua"),
     ("[array]\ncapacity_gib = 1e300\n", "run", "array.capacity_gib"),
     ("[refresh]\ncorrectable_bits = 1e30\n", "run", "refresh.correctable_bits"),

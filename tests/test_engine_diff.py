@@ -65,6 +65,8 @@ configs = st.fixed_dictionaries({
     "array.channels": st.integers(1, 2),
     "array.banks": st.integers(1, 4),
     "array.row_lines": st.sampled_from([0, 4]),
+    "array.mapping": st.sampled_from(["line", "row"]),
+    "array.bank_hash": st.booleans(),
     "array.burst_ns": st.sampled_from([0.0, 5.0]),
     "workload.read_fraction": st.sampled_from([0.0, 0.3, 0.7, 1.0]),
     "workload.interval_ns": st.sampled_from([5.0, 20.0, 60.0, 300.0]),
@@ -94,6 +96,8 @@ def _consistent(ov):
     # Drain thresholds inside the write queue (the config's own rule).
     ov["controller.drain_high"] = min(ov["controller.drain_high"], ov["controller.write_queue"])
     ov["controller.drain_low"] = min(ov["controller.drain_low"], ov["controller.drain_high"] - 1)
+    if ov["array.row_lines"] == 0:
+        ov["array.mapping"] = "line"           # row interleaving needs a row
     if ov["cell.preset"] != "pcm_slc":
         # Pausing stops between SLC programming rounds; program-and-verify writes refuse it.
         ov["controller.write_pause"] = False
@@ -111,6 +115,7 @@ def test_fast_engine_matches_reference(ov):
 FEATURES = {
     "plain": {},
     "row buffer": {"array.row_lines": 8},
+    "row interleaving": {"array.row_lines": 8, "array.mapping": "row", "array.bank_hash": True},
     "closed loop": {"workload.arrival": "closed", "workload.outstanding": 6},
     "closed, writes held": {"workload.arrival": "closed", "controller.idle_writes": False},
     "back-pressure": {"controller.read_queue": 2, "controller.write_queue": 2, "controller.drain_high": 2,

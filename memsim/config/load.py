@@ -228,6 +228,10 @@ def check_consistency(cfg: RunConfig, source: str, overridden: set[str]) -> None
                           f"at most {MAX_MODELED_BYTES >> 30} GiB of modeled lines (array.lines x "
                           "array.line_bytes; every modeled line is held in memory with its state; "
                           "array.capacity_gib scales results to a larger device)")
+    if a.mapping == "row" and a.row_lines < 1:
+        raise ConfigError(_where(source, "array.mapping", overridden), repr(a.mapping),
+                          "line when array.row_lines is 0 (row interleaving keeps a row of "
+                          "row_lines lines in one bank)")
     if cfg.footprint > a.lines:
         raise ConfigError(_where(source, "workload.footprint_lines", overridden),
                           str(cfg.workload.footprint_lines), f"at most array.lines ({a.lines})")

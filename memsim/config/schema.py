@@ -257,6 +257,10 @@ class ArraySection(Section):
     lines: int = Field(65536, ge=16, le=1 << 26,
                        description="Lines modeled with their content (the modeled capacity).")
     bank_hash: bool = Field(False, description="XOR row bits into the bank index.")
+    mapping: Literal["line", "row"] = Field(
+        "line", description="Interleaving order: line = consecutive lines to different channels, then "
+                            "banks; row = a row of row_lines consecutive lines stays in one bank, rows "
+                            "interleaved across channels, then banks (needs row_lines >= 1).")
     row_lines: int = Field(0, ge=0, le=1 << 26, description="Lines per row buffer; 0 = no row buffer.")
     row_hit_ns: float = Field(10.0, gt=0, description="Read latency on a row-buffer hit, ns.")
     burst_ns: float = Field(5.0, ge=0, description="Data-bus time to move one line, ns.")

@@ -145,7 +145,7 @@ class TimingEngine:
         self.path = path
         self.cell = CellTech.from_config(cfg.cell)
         a = cfg.array
-        self.amap = AddressMap(a.channels, a.banks, a.row_lines, a.bank_hash)
+        self.amap = AddressMap.from_config(a)
         self.line_bits = a.line_bytes * 8
         self.closed = cfg.workload.arrival == "closed"
         # A plain list while running (cheap item updates); numpy at the end.
