@@ -89,6 +89,10 @@ configs = st.fixed_dictionaries({
     "power.budget_ua": st.sampled_from([0.0, 20000.0, 60000.0, 1e9]),
     "power.scope": st.sampled_from(["device", "channel"]),
     "cell.preset": st.sampled_from(["pcm_slc", "pcm_slc", "pcm_mlc2"]),
+    "cache.enabled": st.booleans(),
+    "cache.capacity_lines": st.sampled_from([16, 128]),
+    "cache.ways": st.sampled_from([1, 4, 16]),
+    "cache.replacement": st.sampled_from(["lru", "fifo"]),
 })
 
 
@@ -96,6 +100,8 @@ def _consistent(ov):
     # Drain thresholds inside the write queue (the config's own rule).
     ov["controller.drain_high"] = min(ov["controller.drain_high"], ov["controller.write_queue"])
     ov["controller.drain_low"] = min(ov["controller.drain_low"], ov["controller.drain_high"] - 1)
+    if ov["workload.arrival"] == "closed" or ov["controller.hint_preset"]:
+        ov["cache.enabled"] = False            # the cache acts on known arrival times, without hints
     if ov["array.row_lines"] == 0:
         ov["array.mapping"] = "line"           # row interleaving needs a row
     if ov["cell.preset"] != "pcm_slc":
@@ -127,6 +133,11 @@ FEATURES = {
     "multi-level cells": {"cell.preset": "pcm_mlc2"},
     "leveler moves": {"leveling.scheme": "start_gap", "leveling.psi": 5},
     "hint mode, no hints": {"controller.hint_preset": True},
+    "dram cache": {"cache.enabled": True, "cache.capacity_lines": 512, "cache.ways": 4,
+                   "workload.pattern": "zipf"},
+    "dram cache, fifo, row order": {"cache.enabled": True, "cache.capacity_lines": 256,
+                                    "cache.replacement": "fifo", "array.row_lines": 8,
+                                    "array.mapping": "row", "controller.write_cancel": True},
     "everything": {"controller.write_cancel": True, "controller.write_pause": True,
                    "power.budget_ua": 30000.0, "array.row_lines": 8, "leveling.scheme": "start_gap",
                    "workload.arrival": "closed", "array.channels": 2},

@@ -232,6 +232,19 @@ def check_consistency(cfg: RunConfig, source: str, overridden: set[str]) -> None
         raise ConfigError(_where(source, "array.mapping", overridden), repr(a.mapping),
                           "line when array.row_lines is 0 (row interleaving keeps a row of "
                           "row_lines lines in one bank)")
+    k = cfg.cache
+    if k.enabled:
+        if k.capacity_lines % k.ways:
+            raise ConfigError(_where(source, "cache.ways", overridden), str(k.ways),
+                              f"a divisor of cache.capacity_lines ({k.capacity_lines})")
+        if cfg.workload.arrival == "closed" and cfg.workload.pattern != "trace":
+            raise ConfigError(_where(source, "cache.enabled", overridden), "true",
+                              "false with workload.arrival closed (the cache acts on arrival times "
+                              "known before the run)")
+        if cfg.controller.hint_preset:
+            raise ConfigError(_where(source, "cache.enabled", overridden), "true",
+                              "false with controller.hint_preset (a write reaches the PCM at its "
+                              "eviction, not after its hint)")
     if cfg.footprint > a.lines:
         raise ConfigError(_where(source, "workload.footprint_lines", overridden),
                           str(cfg.workload.footprint_lines), f"at most array.lines ({a.lines})")

@@ -2,8 +2,8 @@
 
 Every field has a default and a unit (in its name or its description).  The
 sections are ``run``, ``cell``, ``array``, ``controller``, ``write``,
-``workload``, ``refresh``, ``leveling``, ``lifetime``, ``power`` and
-``erase``; unknown keys are rejected.  Cell defaults come from the SLC preset
+``workload``, ``refresh``, ``leveling``, ``lifetime``, ``power``,
+``erase`` and ``cache``; unknown keys are rejected.  Cell defaults come from the SLC preset
 data file so the numbers (and their sources) live in one place.
 
 Fields that name a part (``write.scheme``, ``leveling.scheme``,
@@ -395,6 +395,21 @@ class PowerSection(Section):
     scope: Literal["channel", "device"] = Field("device", description="What shares the budget.")
 
 
+class CacheSection(Section):
+    enabled: bool = Field(False, description="A DRAM cache in front of the PCM (write-back, write-allocate; "
+                                             "the PCM sees line fills and dirty evictions only).")
+    capacity_lines: int = Field(16384, ge=1, le=1 << 24, description="Lines the cache holds.")
+    ways: int = Field(16, ge=1, le=4096, description="Lines per set (capacity_lines / ways sets; "
+                                                     "ways = capacity_lines is fully associative).")
+    replacement: Literal["lru", "fifo"] = Field("lru", description="Victim choice: lru (least recently "
+                                                                   "used) or fifo (first in, first out).")
+    hit_ns: float = Field(50.0, gt=0, le=MAX_GAP_NS,
+                          description="Latency of a cache hit and of every write, ns (from memory: a DRAM "
+                                      "access of tens of ns).")
+    access_pj_per_bit: float = Field(4.0, ge=0, description="Energy of a cache line access per bit, pJ "
+                                                            "(from memory: a few pJ per bit for DRAM).")
+
+
 class RunConfig(Section):
     """A whole run: memory system plus workload."""
 
@@ -409,6 +424,7 @@ class RunConfig(Section):
     lifetime: LifetimeSection = Field(default_factory=LifetimeSection)
     power: PowerSection = Field(default_factory=PowerSection)
     erase: EraseSection = Field(default_factory=EraseSection)
+    cache: CacheSection = Field(default_factory=CacheSection)
 
     @property
     def footprint(self) -> int:

@@ -6,6 +6,7 @@ from collections.abc import Iterable, Iterator
 import numpy as np
 
 from memsim.config import RunConfig
+from memsim.engine.dram_cache import DramCache
 from memsim.errors import ConfigError, TraceError
 from memsim.experiment.names import check_registered
 from memsim.policy.leveling import Leveler, leveler_names, leveler_params, make_leveler
@@ -180,14 +181,19 @@ class RequestSource:
     reader:
         The :class:`~memsim.workload.trace.TraceReader` of pattern ``trace``,
         else None.
+    cache:
+        The :class:`~memsim.engine.dram_cache.DramCache` in front of the PCM
+        (``cache.enabled``), else None.  With a cache the chunks are its PCM
+        stream (fills and write-backs), again cut to ``run.chunk_requests``.
     """
 
     def __init__(self, chunks: Iterable[Chunk], chunk_requests: int, content: _Content | None,
-                 reader: TraceReader | None = None) -> None:
+                 reader: TraceReader | None = None, cache: DramCache | None = None) -> None:
         self.chunks = chunks
         self.chunk_requests = chunk_requests
         self.content = content
         self.reader = reader
+        self.cache = cache
 
     @property
     def bad_lines(self) -> int:
@@ -195,6 +201,14 @@ class RequestSource:
         return self.reader.bad_lines if self.reader is not None else 0
 
     def __iter__(self) -> Iterator[Chunk]:
+        if self.cache is None:
+            yield from self._host()
+        else:
+            # Cut again: the engines' results must not depend on how many
+            # PCM requests each host chunk happened to give.
+            yield from _rechunk(self.cache.run(self._host()), self.chunk_requests)
+
+    def _host(self) -> Iterator[Chunk]:
         try:
             for ch in _rechunk(self.chunks, self.chunk_requests):
                 if self.content is not None and ch.data is None:
@@ -209,7 +223,7 @@ class RequestSource:
 
 
 def build_source(cfg: RunConfig, rng: np.random.Generator | None = None, *,
-                 content: bool = True) -> RequestSource:
+                 content: bool = True, front: bool = True) -> RequestSource:
     """The run's request stream: the synthetic generator, or a trace for pattern ``trace``.
 
     Parameters
@@ -226,6 +240,10 @@ def build_source(cfg: RunConfig, rng: np.random.Generator | None = None, *,
         Attach write content drawn from the data model where the stream has
         none.  ``False`` when only the requests are wanted (a trace without
         content, the wear engine's write stream).
+    front:
+        Put the DRAM cache (``cache.enabled``) in front: the chunks are then
+        the PCM's requests.  ``False`` for the host's own stream (a trace
+        made from the config).
 
     Raises
     ------
@@ -239,9 +257,10 @@ def build_source(cfg: RunConfig, rng: np.random.Generator | None = None, *,
     req_rng, content_rng = source_streams(cfg.run.seed)
     model = DataModel(w.data, cfg.array.line_bytes, w.flip_fraction, w.one_fraction)
     filler = _Content(model, content_rng) if content and w.data != "flip" else None
+    cache = DramCache.from_config(cfg) if front else None
     if w.pattern != "trace":
         src = SyntheticSource(w, cfg.footprint, req_rng, cfg.run.chunk_requests)
-        return RequestSource(src, cfg.run.chunk_requests, filler)
+        return RequestSource(src, cfg.run.chunk_requests, filler, cache=cache)
     if not w.trace:
         raise ConfigError("workload.trace", "nothing",
                           "the path of a trace file when workload.pattern is 'trace'")
@@ -249,7 +268,7 @@ def build_source(cfg: RunConfig, rng: np.random.Generator | None = None, *,
                         line_bytes=cfg.array.line_bytes, footprint=cfg.footprint)
     if reader.has_data:          # reads the header now, outside the engine
         filler = None
-    return RequestSource(reader, cfg.run.chunk_requests, filler, reader)
+    return RequestSource(reader, cfg.run.chunk_requests, filler, reader, cache)
 
 
 def source_fields(source: RequestSource) -> dict[str, int]:
@@ -288,18 +307,29 @@ def write_stream(cfg: RunConfig, *, endless: bool = True,
     """
     size = chunk or cfg.run.chunk_requests
     cfg = cfg.model_copy(update={"run": cfg.run.model_copy(update={"chunk_requests": size})})
-    done = 0
-    for ch in build_source(cfg, content=False):
-        done += len(ch)
+    chunks = _host_chunks(cfg, endless)
+    cache = DramCache.from_config(cfg)
+    if cache is not None:
+        # The PCM is written by the cache's evictions of dirty lines only.
+        chunks = cache.run(chunks)
+    for ch in chunks:
         yield ch.line[ch.op == WRITE]
+
+
+def _host_chunks(cfg: RunConfig, endless: bool) -> Iterator[Chunk]:
+    """The host's requests without content (for :func:`write_stream`), endless if asked."""
+    done = 0
+    for ch in build_source(cfg, content=False, front=False):
+        done += len(ch)
+        yield ch
     if not endless or cfg.workload.pattern == "trace":
         return
     # The generator cuts its last chunk short, which changes the draws after
     # it; go on with an endless generator of the same seed from that request.
     wl = cfg.workload.model_copy(update={"requests": 1 << 62})
-    for ch in build_source(cfg.model_copy(update={"workload": wl}), content=False):
+    for ch in build_source(cfg.model_copy(update={"workload": wl}), content=False, front=False):
         if done >= len(ch):
             done -= len(ch)
             continue
         ch, done = ch.take(slice(done, None)), 0
-        yield ch.line[ch.op == WRITE]
+        yield ch

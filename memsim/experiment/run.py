@@ -19,6 +19,7 @@ from memsim.engine.timing import TimingEngine, TimingTotals
 from memsim.errors import ConfigError
 from memsim.experiment.build import build_path, build_source, source_fields
 from memsim.experiment.checks import check_parts
+from memsim.experiment.front import cache_energy_pj, front_fields, host_counts
 from memsim.experiment.lifetime import lifetime_fields
 from memsim.experiment.progress import track
 from memsim.metrics.result import RunResult
@@ -44,8 +45,13 @@ def resolve(config: str | Path | Mapping | RunConfig | None, overrides: Mapping[
     return cfg
 
 
-def summarize(cfg: RunConfig, tot: TimingTotals, path: WritePath) -> dict[str, Any]:
-    """The flat summary dict of a run (units in the names)."""
+def summarize(cfg: RunConfig, tot: TimingTotals, path: WritePath, cache=None) -> dict[str, Any]:
+    """The flat summary dict of a run (units in the names).
+
+    Request, latency and cell keys describe the PCM side (with a DRAM cache
+    in front: its fills and write-backs); ``energy_pj`` and
+    ``energy_per_bit_pj`` are of the whole memory per bit the host moved.
+    """
     line_bytes = cfg.array.line_bytes
     sim = tot.simulated_ns
     n = tot.requests
@@ -60,9 +66,10 @@ def summarize(cfg: RunConfig, tot: TimingTotals, path: WritePath) -> dict[str, A
     # Percentiles from the streamed histogram (relative error <= stream.REL_ERROR).
     s.update(tot.stream.stats(READ, "read_latency"))
     s.update(tot.stream.stats(WRITE, "write_latency"))
+    cache_pj = cache_energy_pj(cfg, cache)
     energy = (tot.read_pj + tot.set_pj + tot.reset_pj + tot.mlc_pj + tot.cancelled_pj + tot.preset_pj
-              + tot.refresh_pj + tot.erase_pj)
-    bits = n * line_bytes * 8
+              + tot.refresh_pj + tot.erase_pj + cache_pj)
+    bits = sum(host_counts(tot, cache)) * line_bytes * 8
     s.update({
         "energy_pj": energy,
         "energy_read_pj": tot.read_pj,
@@ -72,6 +79,7 @@ def summarize(cfg: RunConfig, tot: TimingTotals, path: WritePath) -> dict[str, A
         "energy_cancelled_pj": tot.cancelled_pj,
         "energy_preset_pj": tot.preset_pj,
         "energy_refresh_pj": tot.refresh_pj,
+        "energy_cache_pj": cache_pj,
         "energy_per_bit_pj": energy / bits if bits else 0.0,
         "cells_programmed_per_write": (tot.user_set_cells + tot.user_reset_cells) / tot.writes
         if tot.writes else 0.0,
@@ -196,7 +204,8 @@ def _simulate(cfg: RunConfig) -> RunResult:
     source = build_source(cfg, rng)
     try:
         plan = plan_refresh(cfg)
-        total = cfg.workload.requests if cfg.workload.pattern != "trace" else None
+        # With a cache in front the PCM sees fewer requests than the host sends.
+        total = cfg.workload.requests if cfg.workload.pattern != "trace" and source.cache is None else None
         chunks = track(source, total, "req", f"run {cfg.run.name}")
         engine = make_engine(cfg, chunks, path, plan, np.random.default_rng([cfg.run.seed, 1]))
         if plan.active:
@@ -206,8 +215,9 @@ def _simulate(cfg: RunConfig) -> RunResult:
     finally:
         if source.reader is not None:
             source.reader.close()       # stop the trace's read-ahead thread on every path
-    summary = summarize(cfg, tot, path)
+    summary = summarize(cfg, tot, path, source.cache)
     summary["engine"] = engine.name
+    summary.update(front_fields(cfg, tot, source.cache))
     summary.update(refresh_fields(tot, engine.agent, summary))
     summary.update(erase_fields(engine, summary))
     summary.update(source_fields(source))
