@@ -271,3 +271,14 @@ def test_refresh_policy_none_changes_nothing(cls):
     for k, v in vars(a).items():
         if not isinstance(v, np.ndarray | LatencyStream):
             assert _same(getattr(b, k), v), k
+
+
+def test_front_end_and_energy_terms_match_reference():
+    # The cache, the row order and every energy term act before or after the
+    # engines; the whole summary agrees key for key.
+    s = assert_summaries_agree({
+        "workload.requests": 4000, "array.lines": 4096, "array.row_lines": 8, "array.mapping": "row",
+        "workload.pattern": "zipf", "cache.enabled": True, "cache.capacity_lines": 256, "cache.ways": 4,
+        "energy.background_mw_per_bank": 10.0, "energy.peripheral_pj_per_access": 100.0,
+        "energy.io_pj_per_bit": 1.0, "energy.row_hit_pj_per_bit": 0.2})
+    assert s["row_hits"] > 0 and s["cache_hit_rate"] > 0

@@ -93,6 +93,9 @@ def _row_hit_share(cls, mapping: str) -> float:
     hit = np.isclose(lat, cfg.array.row_hit_ns + cfg.array.burst_ns)
     miss = np.isclose(lat, eng.cell.read_ns + cfg.array.burst_ns)
     assert np.all(hit | miss)
+    # The row hits counted from the stream (engine/rows.py) are the ones served.
+    assert tot.row_hits == int(np.count_nonzero(np.isclose(
+        tot.latency_ns, cfg.array.row_hit_ns + cfg.array.burst_ns)))
     return float(hit.mean())
 
 

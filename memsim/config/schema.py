@@ -3,7 +3,7 @@
 Every field has a default and a unit (in its name or its description).  The
 sections are ``run``, ``cell``, ``array``, ``controller``, ``write``,
 ``workload``, ``refresh``, ``leveling``, ``lifetime``, ``power``,
-``erase`` and ``cache``; unknown keys are rejected.  Cell defaults come from the SLC preset
+``erase``, ``cache`` and ``energy``; unknown keys are rejected.  Cell defaults come from the SLC preset
 data file so the numbers (and their sources) live in one place.
 
 Fields that name a part (``write.scheme``, ``leveling.scheme``,
@@ -410,6 +410,20 @@ class CacheSection(Section):
                                                             "(from memory: a few pJ per bit for DRAM).")
 
 
+class EnergySection(Section):
+    background_mw_per_bank: float = Field(0.0, ge=0, le=1e6,
+                                          description="Background (standby) power of a bank, mW; "
+                                                      "0 = not counted.")
+    peripheral_pj_per_access: float = Field(0.0, ge=0, description="Decoders, sense and drive circuits per "
+                                                                   "array access (read, write, move, "
+                                                                   "refresh), pJ; 0 = not counted.")
+    io_pj_per_bit: float = Field(0.0, ge=0, description="Data bus and I/O energy per bit moved between "
+                                                        "controller and PCM, pJ; 0 = not counted.")
+    row_hit_pj_per_bit: float | None = Field(
+        None, ge=0, description="Energy per bit of a read served from the open row, pJ; none = charged "
+                                "as a full array read.")
+
+
 class RunConfig(Section):
     """A whole run: memory system plus workload."""
 
@@ -425,6 +439,7 @@ class RunConfig(Section):
     power: PowerSection = Field(default_factory=PowerSection)
     erase: EraseSection = Field(default_factory=EraseSection)
     cache: CacheSection = Field(default_factory=CacheSection)
+    energy: EnergySection = Field(default_factory=EnergySection)
 
     @property
     def footprint(self) -> int:

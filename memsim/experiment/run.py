@@ -22,6 +22,7 @@ from memsim.experiment.checks import check_parts
 from memsim.experiment.front import cache_energy_pj, front_fields, host_counts
 from memsim.experiment.lifetime import lifetime_fields
 from memsim.experiment.progress import track
+from memsim.metrics.energy import periphery_energy
 from memsim.metrics.result import RunResult
 from memsim.policy.refresh import check_refresh_load, plan_refresh
 from memsim.policy.write.bits import popcount_rows
@@ -45,7 +46,8 @@ def resolve(config: str | Path | Mapping | RunConfig | None, overrides: Mapping[
     return cfg
 
 
-def summarize(cfg: RunConfig, tot: TimingTotals, path: WritePath, cache=None) -> dict[str, Any]:
+def summarize(cfg: RunConfig, tot: TimingTotals, path: WritePath, cache=None,
+              refreshes: int = 0) -> dict[str, Any]:
     """The flat summary dict of a run (units in the names).
 
     Request, latency and cell keys describe the PCM side (with a DRAM cache
@@ -67,19 +69,33 @@ def summarize(cfg: RunConfig, tot: TimingTotals, path: WritePath, cache=None) ->
     s.update(tot.stream.stats(READ, "read_latency"))
     s.update(tot.stream.stats(WRITE, "write_latency"))
     cache_pj = cache_energy_pj(cfg, cache)
-    energy = (tot.read_pj + tot.set_pj + tot.reset_pj + tot.mlc_pj + tot.cancelled_pj + tot.preset_pj
-              + tot.refresh_pj + tot.erase_pj + cache_pj)
+    span = sim if cache is None else max(sim, cache.last_hit_finish_ns)
+    more = periphery_energy(cfg, read_pj=tot.read_pj, read_bits=tot.read_bits, row_hits=tot.row_hits,
+                            user_reads=tot.reads, user_writes=tot.writes, moves=tot.move_writes,
+                            refreshes=refreshes, span_ns=span)
+    # The cells' parts in their old order first: with the new terms zero the
+    # total is bit for bit what it was before they existed.
+    energy = (more["energy_read_pj"] + tot.set_pj + tot.reset_pj + tot.mlc_pj + tot.cancelled_pj
+              + tot.preset_pj + tot.refresh_pj + tot.erase_pj + more["energy_row_hit_pj"]
+              + more["energy_background_pj"] + more["energy_peripheral_pj"] + more["energy_io_pj"]
+              + cache_pj)
     bits = sum(host_counts(tot, cache)) * line_bytes * 8
     s.update({
         "energy_pj": energy,
-        "energy_read_pj": tot.read_pj,
+        "energy_read_pj": more["energy_read_pj"],
         "energy_set_pj": tot.set_pj,
         "energy_reset_pj": tot.reset_pj,
         "energy_mlc_program_pj": tot.mlc_pj,
         "energy_cancelled_pj": tot.cancelled_pj,
         "energy_preset_pj": tot.preset_pj,
         "energy_refresh_pj": tot.refresh_pj,
+        "energy_row_hit_pj": more["energy_row_hit_pj"],
+        "energy_background_pj": more["energy_background_pj"],
+        "energy_peripheral_pj": more["energy_peripheral_pj"],
+        "energy_io_pj": more["energy_io_pj"],
         "energy_cache_pj": cache_pj,
+        "row_hits": more["row_hits"],
+        "row_hit_rate": more["row_hit_rate"],
         "energy_per_bit_pj": energy / bits if bits else 0.0,
         "cells_programmed_per_write": (tot.user_set_cells + tot.user_reset_cells) / tot.writes
         if tot.writes else 0.0,
@@ -215,7 +231,8 @@ def _simulate(cfg: RunConfig) -> RunResult:
     finally:
         if source.reader is not None:
             source.reader.close()       # stop the trace's read-ahead thread on every path
-    summary = summarize(cfg, tot, path, source.cache)
+    refreshes = engine.agent.refreshes if engine.agent is not None else 0
+    summary = summarize(cfg, tot, path, source.cache, refreshes)
     summary["engine"] = engine.name
     summary.update(front_fields(cfg, tot, source.cache))
     summary.update(refresh_fields(tot, engine.agent, summary))

@@ -79,7 +79,8 @@ SECTIONS: list[_Section] = [
     _Section("requests and throughput",
              lambda k: k in ("engine", "requests", "reads", "writes", "simulated_ns", "throughput_gbps",
                              "requests_per_s", "bank_utilization", "mean_in_system")),
-    _Section("latency", _prefix("read_latency", "write_latency")),
+    _Section("latency", lambda k: k.startswith(("read_latency", "write_latency")) or k in (
+        "row_hits", "row_hit_rate")),
     _Section("energy",
              lambda k: k.startswith("energy") or k in (
                  "cells_programmed_per_write", "set_cells_per_write", "reset_cells_per_write",
