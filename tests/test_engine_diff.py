@@ -282,3 +282,32 @@ def test_front_end_and_energy_terms_match_reference():
         "energy.background_mw_per_bank": 10.0, "energy.peripheral_pj_per_access": 100.0,
         "energy.io_pj_per_bit": 1.0, "energy.row_hit_pj_per_bit": 0.2})
     assert s["row_hits"] > 0 and s["cache_hit_rate"] > 0
+
+
+stream_configs = st.fixed_dictionaries({
+    "run.seed": st.integers(0, 1000),
+    "array.lines": st.just(4096),
+    "array.banks": st.integers(1, 4),
+    "array.row_lines": st.sampled_from([0, 4]),
+    "controller.write_cancel": st.booleans(),
+    "streams": st.lists(st.fixed_dictionaries({
+        "pattern": st.sampled_from(["uniform", "zipf", "sequential"]),
+        "requests": st.integers(100, 1500),
+        "read_fraction": st.sampled_from([0.0, 0.5, 1.0]),
+        "arrival": st.sampled_from(["poisson", "fixed", "onoff"]),
+        "interval_ns": st.sampled_from([20.0, 100.0, 400.0]),
+        "offset_lines": st.sampled_from([0, 1024, 2048]),
+        "footprint_lines": st.sampled_from([64, 1024]),
+    }), min_size=1, max_size=3),
+})
+
+
+def _named(ov):
+    ov["streams"] = [{**s, "name": f"s{i}"} for i, s in enumerate(ov["streams"])]
+    return ov
+
+
+@settings(max_examples=12, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(stream_configs.map(_named))
+def test_fast_engine_matches_reference_with_mixed_streams(ov):
+    assert_engines_agree(ov)

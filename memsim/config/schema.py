@@ -424,6 +424,25 @@ class EnergySection(Section):
                                 "as a full array read.")
 
 
+class StreamSection(Section):
+    """One request stream of a mix (``[[streams]]``); the rest of ``[workload]`` applies to all."""
+
+    name: str = Field(..., pattern=r"^[A-Za-z0-9_]+$", description="Name of the stream (in its summary keys).")
+    pattern: Literal["uniform", "zipf", "hotspot", "sequential", "strided"] = Field(
+        "uniform", description="Address pattern of the stream.")
+    requests: int = Field(10_000, ge=1, le=MAX_REQUESTS, description="Requests the stream issues (in lines).")
+    read_fraction: float = Field(0.7, ge=0, le=1, description="Share of the stream's requests that are reads.")
+    arrival: Literal["poisson", "fixed", "onoff"] = Field("poisson", description="Arrival process.")
+    interval_ns: float = Field(100.0, gt=0, le=MAX_GAP_NS, description="Mean time between arrivals, ns.")
+    offset_lines: int = Field(0, ge=0, description="First line of the stream's address range.")
+    footprint_lines: int = Field(0, ge=0, description="Lines the stream touches from offset_lines on; "
+                                                      "0 = up to the end of the modeled lines.")
+    zipf_exponent: float = Field(1.0, gt=0, description="Zipf exponent s (pattern zipf).")
+    hot_fraction: float = Field(0.1, gt=0, lt=1, description="Share of the footprint that is hot (hotspot).")
+    hot_share: float = Field(0.9, gt=0, lt=1, description="Share of accesses to hot lines (hotspot).")
+    stride_lines: int = Field(1, ge=1, description="Stride in lines (pattern strided).")
+
+
 class RunConfig(Section):
     """A whole run: memory system plus workload."""
 
@@ -440,6 +459,9 @@ class RunConfig(Section):
     erase: EraseSection = Field(default_factory=EraseSection)
     cache: CacheSection = Field(default_factory=CacheSection)
     energy: EnergySection = Field(default_factory=EnergySection)
+    streams: list[StreamSection] = Field(
+        default_factory=list, description="Mixed streams merged by arrival time ([[streams]]); empty = "
+                                          "the one stream of [workload].")
 
     @property
     def footprint(self) -> int:

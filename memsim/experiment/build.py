@@ -18,6 +18,7 @@ from memsim.tech.technology import uses_verify
 from memsim.workload.chunk import WRITE, Chunk
 from memsim.workload.content import DataModel
 from memsim.workload.synthetic import SyntheticSource
+from memsim.workload.mix import StreamMerge
 from memsim.workload.trace import TraceReader, read_trace
 
 
@@ -181,6 +182,9 @@ class RequestSource:
     reader:
         The :class:`~memsim.workload.trace.TraceReader` of pattern ``trace``,
         else None.
+    mix:
+        The :class:`~memsim.workload.mix.StreamMerge` of ``[[streams]]``
+        (it knows each request's stream), else None.
     cache:
         The :class:`~memsim.engine.dram_cache.DramCache` in front of the PCM
         (``cache.enabled``), else None.  With a cache the chunks are its PCM
@@ -188,8 +192,10 @@ class RequestSource:
     """
 
     def __init__(self, chunks: Iterable[Chunk], chunk_requests: int, content: _Content | None,
-                 reader: TraceReader | None = None, cache: DramCache | None = None) -> None:
+                 reader: TraceReader | None = None, cache: DramCache | None = None,
+                 mix: StreamMerge | None = None) -> None:
         self.chunks = chunks
+        self.mix = mix
         self.chunk_requests = chunk_requests
         self.content = content
         self.reader = reader
@@ -258,6 +264,9 @@ def build_source(cfg: RunConfig, rng: np.random.Generator | None = None, *,
     model = DataModel(w.data, cfg.array.line_bytes, w.flip_fraction, w.one_fraction)
     filler = _Content(model, content_rng) if content and w.data != "flip" else None
     cache = DramCache.from_config(cfg) if front else None
+    if cfg.streams:
+        mix = mixed_streams(cfg)
+        return RequestSource(mix, cfg.run.chunk_requests, filler, cache=cache, mix=mix)
     if w.pattern != "trace":
         src = SyntheticSource(w, cfg.footprint, req_rng, cfg.run.chunk_requests)
         return RequestSource(src, cfg.run.chunk_requests, filler, cache=cache)
@@ -269,6 +278,23 @@ def build_source(cfg: RunConfig, rng: np.random.Generator | None = None, *,
     if reader.has_data:          # reads the header now, outside the engine
         filler = None
     return RequestSource(reader, cfg.run.chunk_requests, filler, reader, cache)
+
+
+_STREAM_KEYS = ("pattern", "requests", "read_fraction", "arrival", "interval_ns", "zipf_exponent",
+                "hot_fraction", "hot_share", "stride_lines")
+
+
+def mixed_streams(cfg: RunConfig) -> StreamMerge:
+    """The ``[[streams]]`` of a config as one merged source (each on its own random stream)."""
+    sources, offsets = [], []
+    for j, st in enumerate(cfg.streams):
+        wl = cfg.workload.model_copy(update={**{k: getattr(st, k) for k in _STREAM_KEYS},
+                                             "hint_lead_ns": 0.0})
+        rng = np.random.default_rng(np.random.SeedSequence(cfg.run.seed, spawn_key=(_REQUEST_STREAM, j + 1)))
+        footprint = st.footprint_lines or cfg.footprint - st.offset_lines
+        sources.append(SyntheticSource(wl, footprint, rng, cfg.run.chunk_requests))
+        offsets.append(st.offset_lines)
+    return StreamMerge(sources, offsets)
 
 
 def source_fields(source: RequestSource) -> dict[str, int]:

@@ -11,7 +11,10 @@ from __future__ import annotations
 from typing import Any
 
 from memsim.config import RunConfig
+import numpy as np
+
 from memsim.engine.dram_cache import DramCache, merged_latency
+from memsim.engine.stream import LatencyStream
 from memsim.engine.timing import TimingTotals
 from memsim.workload.chunk import READ, WRITE
 
@@ -57,4 +60,25 @@ def front_fields(cfg: RunConfig, tot: TimingTotals, cache: DramCache | None) -> 
         # Share of the host's line writes the PCM did not have to take.
         "pcm_write_reduction": 1.0 - cache.writebacks / writes if writes else None,
     })
+    return s
+
+
+def stream_fields(cfg: RunConfig, tot: TimingTotals, tags: np.ndarray) -> dict[str, Any]:
+    """Per-stream keys of a mix: ``stream_<name>_{requests,reads,writes,throughput_gbps}`` and
+    ``stream_<name>_{read,write}_latency_{mean,p50,p95,p99}_ns`` (same histogram as the totals)."""
+    s: dict[str, Any] = {}
+    sim = tot.simulated_ns
+    for j, st in enumerate(cfg.streams):
+        mine = tags == j
+        op = tot.op[mine]
+        stream = LatencyStream()
+        stream.add(op, tot.arrival_ns[mine], tot.finish_ns[mine])
+        n = int(mine.sum())
+        p = f"stream_{st.name}_"
+        s[p + "requests"] = n
+        s[p + "reads"] = int((op == READ).sum())
+        s[p + "writes"] = int((op == WRITE).sum())
+        s[p + "throughput_gbps"] = n * cfg.array.line_bytes / sim if sim > 0 else 0.0
+        s.update(stream.stats(READ, p + "read_latency"))
+        s.update(stream.stats(WRITE, p + "write_latency"))
     return s

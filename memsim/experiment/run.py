@@ -19,7 +19,7 @@ from memsim.engine.timing import TimingEngine, TimingTotals
 from memsim.errors import ConfigError
 from memsim.experiment.build import build_path, build_source, source_fields
 from memsim.experiment.checks import check_parts
-from memsim.experiment.front import cache_energy_pj, front_fields, host_counts
+from memsim.experiment.front import cache_energy_pj, front_fields, host_counts, stream_fields
 from memsim.experiment.lifetime import lifetime_fields
 from memsim.experiment.progress import track
 from memsim.metrics.energy import periphery_energy
@@ -205,7 +205,7 @@ def simulate(config: str | Path | Mapping | RunConfig | None = None, **overrides
 def expected_span_ns(cfg: RunConfig) -> float | None:
     """Simulated time an open-loop synthetic run spans (arrivals only); None if not known up front."""
     w = cfg.workload
-    if w.pattern == "trace" or w.arrival == "closed":
+    if w.pattern == "trace" or w.arrival == "closed" or cfg.streams:
         return None
     span = w.requests * w.interval_ns
     if w.arrival == "onoff":
@@ -222,8 +222,13 @@ def _simulate(cfg: RunConfig) -> RunResult:
         plan = plan_refresh(cfg)
         # With a cache in front the PCM sees fewer requests than the host sends.
         total = cfg.workload.requests if cfg.workload.pattern != "trace" and source.cache is None else None
+        if cfg.streams:
+            total = sum(st.requests for st in cfg.streams)
         chunks = track(source, total, "req", f"run {cfg.run.name}")
-        engine = make_engine(cfg, chunks, path, plan, np.random.default_rng([cfg.run.seed, 1]))
+        # Per-stream keys come from each request's arrival and finish.
+        run_cfg = cfg if not cfg.streams else cfg.model_copy(
+            update={"run": cfg.run.model_copy(update={"keep_requests": True})})
+        engine = make_engine(run_cfg, chunks, path, plan, np.random.default_rng([cfg.run.seed, 1]))
         if plan.active:
             lines_per_bank, service = refresh_demand(engine)
             check_refresh_load(plan, lines_per_bank, service, expected_span_ns(cfg))
@@ -235,6 +240,8 @@ def _simulate(cfg: RunConfig) -> RunResult:
     summary = summarize(cfg, tot, path, source.cache, refreshes)
     summary["engine"] = engine.name
     summary.update(front_fields(cfg, tot, source.cache))
+    if source.mix is not None:
+        summary.update(stream_fields(cfg, tot, source.mix.stream_of_requests()))
     summary.update(refresh_fields(tot, engine.agent, summary))
     summary.update(erase_fields(engine, summary))
     summary.update(source_fields(source))

@@ -54,6 +54,7 @@ SECTIONS: list[_Section] = [
     # Without a cache the overall_* keys repeat the PCM-side ones: printed only with one.
     _Section("dram cache", lambda k: k.startswith(("cache_", "overall_")) or k in (
         "pcm_write_reduction", "energy_cache_pj"), lambda c, s: bool(_get(c, "cache.enabled"))),
+    _Section("mixed streams", _prefix("stream_"), lambda c, s: bool(_get(c, "streams"))),
     _Section("power budget", _prefix("power_wait"),
              lambda c, s: (_get(c, "power.budget_ua", 0) or 0) > 0),
     _Section("write cancellation and pausing",
