@@ -90,10 +90,10 @@ def test_each_stream_keeps_its_rate_and_range():
 
 def test_streams_from_a_toml_file(tmp_path):
     p = tmp_path / "mix.toml"
-    p.write_text('[run]\nname = "two_tenants"\nout_dir = "%s"\n'
+    p.write_text(f'[run]\nname = "two_tenants"\nout_dir = "{tmp_path}"\n'
                  '[[streams]]\nname = "north"\nrequests = 2000\ninterval_ns = 150.0\n'
                  '[[streams]]\nname = "south"\nrequests = 1000\npattern = "sequential"\n'
-                 'offset_lines = 30000\nfootprint_lines = 512\n' % tmp_path)
+                 'offset_lines = 30000\nfootprint_lines = 512\n')
     res = memsim_cli("run", str(p))
     assert res.code == 0, res.err
     assert "stream_south_requests" in res.out

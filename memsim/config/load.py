@@ -13,7 +13,14 @@ from typing import Any
 
 from pydantic import BaseModel, ValidationError
 
-from memsim.config.schema import LIMIT_NOTES, MAX_MODELED_BYTES, MAX_REQUESTS, RunConfig, load_preset, preset_names
+from memsim.config.schema import (
+    LIMIT_NOTES,
+    MAX_MODELED_BYTES,
+    MAX_REQUESTS,
+    RunConfig,
+    load_preset,
+    preset_names,
+)
 from memsim.errors import ConfigError
 
 

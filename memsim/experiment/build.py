@@ -17,8 +17,8 @@ from memsim.tech.models import mlc_cell
 from memsim.tech.technology import uses_verify
 from memsim.workload.chunk import WRITE, Chunk
 from memsim.workload.content import DataModel
-from memsim.workload.synthetic import SyntheticSource
 from memsim.workload.mix import StreamMerge
+from memsim.workload.synthetic import SyntheticSource
 from memsim.workload.trace import TraceReader, read_trace
 
 

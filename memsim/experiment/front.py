@@ -10,9 +10,9 @@ from __future__ import annotations
 
 from typing import Any
 
-from memsim.config import RunConfig
 import numpy as np
 
+from memsim.config import RunConfig
 from memsim.engine.dram_cache import DramCache, merged_latency
 from memsim.engine.stream import LatencyStream
 from memsim.engine.timing import TimingTotals
