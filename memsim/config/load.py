@@ -268,6 +268,10 @@ def check_consistency(cfg: RunConfig, source: str, overridden: set[str]) -> None
                 raise ConfigError(_where(source, key, overridden), "this setting", allowed)
     k = cfg.cache
     if k.enabled:
+        if k.capacity_lines * a.line_bytes > MAX_MODELED_BYTES:
+            raise ConfigError(_where(source, "cache.capacity_lines", overridden), str(k.capacity_lines),
+                              f"at most {MAX_MODELED_BYTES >> 30} GiB of cached lines (capacity_lines x "
+                              "array.line_bytes; the content of dirty lines is held in memory)")
         if k.capacity_lines % k.ways:
             raise ConfigError(_where(source, "cache.ways", overridden), str(k.ways),
                               f"a divisor of cache.capacity_lines ({k.capacity_lines})")
