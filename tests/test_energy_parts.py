@@ -66,3 +66,14 @@ def test_new_terms_at_their_defaults_change_nothing():
 def test_row_hit_energy_with_no_row_buffer_is_zero():
     s = simulate(None, overrides={"workload.requests": 3000, "energy.row_hit_pj_per_bit": 0.3}).summary
     assert s["row_hits"] == 0 and s["energy_row_hit_pj"] == 0.0 and s["row_hit_rate"] is None
+
+
+def test_refreshes_are_peripheral_accesses_too():
+    # 2-bit drifting cells with a short refresh age (as in test_engine_diff.py's DRIFTING).
+    ov = {"cell.preset": "pcm_mlc2", "array.lines": 1024, "array.banks": 8,
+          "array.capacity_gib": 1e4 * 1024 * 64 / 2**30, "workload.interval_ns": 500.0,
+          "workload.requests": 4000, "refresh.policy": "drift", "energy.peripheral_pj_per_access": 1.0}
+    s = simulate(None, overrides=ov).summary
+    assert s["refreshes"] > 0
+    assert s["energy_peripheral_pj"] == s["reads"] + s["writes"] + s["leveling_move_writes"] + s["refreshes"]
+    assert _parts(s) == pytest.approx(s["energy_pj"], rel=1e-12)
