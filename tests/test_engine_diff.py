@@ -67,6 +67,8 @@ configs = st.fixed_dictionaries({
     "array.channels": st.integers(1, 2),
     "array.banks": st.integers(1, 4),
     "array.row_lines": st.sampled_from([0, 4]),
+    "array.mapping": st.sampled_from(["line", "row"]),
+    "array.bank_hash": st.booleans(),
     "array.burst_ns": st.sampled_from([0.0, 5.0]),
     "workload.read_fraction": st.sampled_from([0.0, 0.3, 0.7, 1.0]),
     "workload.interval_ns": st.sampled_from([5.0, 20.0, 60.0, 300.0]),
@@ -89,6 +91,10 @@ configs = st.fixed_dictionaries({
     "power.budget_ua": st.sampled_from([0.0, 20000.0, 60000.0, 1e9]),
     "power.scope": st.sampled_from(["device", "channel"]),
     "cell.preset": st.sampled_from(["pcm_slc", "pcm_slc", "pcm_mlc2"]),
+    "cache.enabled": st.booleans(),
+    "cache.capacity_lines": st.sampled_from([16, 128]),
+    "cache.ways": st.sampled_from([1, 4, 16]),
+    "cache.replacement": st.sampled_from(["lru", "fifo"]),
 })
 
 
@@ -96,6 +102,10 @@ def _consistent(ov):
     # Drain thresholds inside the write queue (the config's own rule).
     ov["controller.drain_high"] = min(ov["controller.drain_high"], ov["controller.write_queue"])
     ov["controller.drain_low"] = min(ov["controller.drain_low"], ov["controller.drain_high"] - 1)
+    if ov["workload.arrival"] == "closed" or ov["controller.hint_preset"]:
+        ov["cache.enabled"] = False            # the cache acts on known arrival times, without hints
+    if ov["array.row_lines"] == 0:
+        ov["array.mapping"] = "line"           # row interleaving needs a row
     if ov["cell.preset"] != "pcm_slc":
         # Pausing stops between SLC programming rounds; program-and-verify writes refuse it,
         # and hint pre-programming models SLC.
@@ -117,6 +127,7 @@ def test_fast_engine_matches_reference(ov):
 FEATURES = {
     "plain": {},
     "row buffer": {"array.row_lines": 8},
+    "row interleaving": {"array.row_lines": 8, "array.mapping": "row", "array.bank_hash": True},
     "closed loop": {"workload.arrival": "closed", "workload.outstanding": 6},
     "closed, writes held": {"workload.arrival": "closed", "controller.idle_writes": False},
     "back-pressure": {"controller.read_queue": 2, "controller.write_queue": 2, "controller.drain_high": 2,
@@ -128,6 +139,11 @@ FEATURES = {
     "multi-level cells": {"cell.preset": "pcm_mlc2"},
     "leveler moves": {"leveling.scheme": "start_gap", "leveling.psi": 5},
     "hint mode, no hints": {"controller.hint_preset": True},
+    "dram cache": {"cache.enabled": True, "cache.capacity_lines": 512, "cache.ways": 4,
+                   "workload.pattern": "zipf"},
+    "dram cache, fifo, row order": {"cache.enabled": True, "cache.capacity_lines": 256,
+                                    "cache.replacement": "fifo", "array.row_lines": 8,
+                                    "array.mapping": "row", "controller.write_cancel": True},
     "everything": {"controller.write_cancel": True, "controller.write_pause": True,
                    "power.budget_ua": 30000.0, "array.row_lines": 8, "leveling.scheme": "start_gap",
                    "workload.arrival": "closed", "array.channels": 2},
@@ -261,3 +277,43 @@ def test_refresh_policy_none_changes_nothing(cls):
     for k, v in vars(a).items():
         if not isinstance(v, np.ndarray | LatencyStream):
             assert _same(getattr(b, k), v), k
+
+
+def test_front_end_and_energy_terms_match_reference():
+    # The cache, the row order and every energy term act before or after the
+    # engines; the whole summary agrees key for key.
+    s = assert_summaries_agree({
+        "workload.requests": 4000, "array.lines": 4096, "array.row_lines": 8, "array.mapping": "row",
+        "workload.pattern": "zipf", "cache.enabled": True, "cache.capacity_lines": 256, "cache.ways": 4,
+        "energy.background_mw_per_bank": 10.0, "energy.peripheral_pj_per_access": 100.0,
+        "energy.io_pj_per_bit": 1.0, "energy.row_hit_pj_per_bit": 0.2})
+    assert s["row_hits"] > 0 and s["cache_hit_rate"] > 0
+
+
+stream_configs = st.fixed_dictionaries({
+    "run.seed": st.integers(0, 1000),
+    "array.lines": st.just(4096),
+    "array.banks": st.integers(1, 4),
+    "array.row_lines": st.sampled_from([0, 4]),
+    "controller.write_cancel": st.booleans(),
+    "streams": st.lists(st.fixed_dictionaries({
+        "pattern": st.sampled_from(["uniform", "zipf", "sequential"]),
+        "requests": st.integers(100, 1500),
+        "read_fraction": st.sampled_from([0.0, 0.5, 1.0]),
+        "arrival": st.sampled_from(["poisson", "fixed", "onoff"]),
+        "interval_ns": st.sampled_from([20.0, 100.0, 400.0]),
+        "offset_lines": st.sampled_from([0, 1024, 2048]),
+        "footprint_lines": st.sampled_from([64, 1024]),
+    }), min_size=1, max_size=3),
+})
+
+
+def _named(ov):
+    ov["streams"] = [{**s, "name": f"s{i}"} for i, s in enumerate(ov["streams"])]
+    return ov
+
+
+@settings(max_examples=12, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(stream_configs.map(_named))
+def test_fast_engine_matches_reference_with_mixed_streams(ov):
+    assert_engines_agree(ov)

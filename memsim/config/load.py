@@ -13,7 +13,14 @@ from typing import Any
 
 from pydantic import BaseModel, ValidationError
 
-from memsim.config.schema import LIMIT_NOTES, MAX_MODELED_BYTES, RunConfig, load_preset, preset_names
+from memsim.config.schema import (
+    LIMIT_NOTES,
+    MAX_MODELED_BYTES,
+    MAX_REQUESTS,
+    RunConfig,
+    load_preset,
+    preset_names,
+)
 from memsim.errors import ConfigError
 
 
@@ -175,6 +182,11 @@ def validate(data: dict, source: str = "<config>", overridden: set[str] | None =
     overridden = overridden or set()
     data = copy.deepcopy(data)
     for section, values in data.items():
+        if section == "streams":
+            if not isinstance(values, list) or not all(isinstance(v, dict) for v in values):
+                raise ConfigError(_where(source, section, overridden), repr(values),
+                                  "a list of tables [[streams]]")
+            continue
         if section in RunConfig.model_fields and not isinstance(values, dict):
             raise ConfigError(_where(source, section, overridden), repr(values), f"a table [{section}]")
     cell = data.get("cell")
@@ -228,6 +240,49 @@ def check_consistency(cfg: RunConfig, source: str, overridden: set[str]) -> None
                           f"at most {MAX_MODELED_BYTES >> 30} GiB of modeled lines (array.lines x "
                           "array.line_bytes; every modeled line is held in memory with its state; "
                           "array.capacity_gib scales results to a larger device)")
+    if a.mapping == "row" and a.row_lines < 1:
+        raise ConfigError(_where(source, "array.mapping", overridden), repr(a.mapping),
+                          "line when array.row_lines is 0 (row interleaving keeps a row of "
+                          "row_lines lines in one bank)")
+    names = set()
+    for i, st in enumerate(cfg.streams):
+        key = f"streams[{i}]"
+        if st.name in names:
+            raise ConfigError(_where(source, f"{key}.name", overridden), repr(st.name),
+                              "a name no other stream has")
+        names.add(st.name)
+        if st.offset_lines + max(st.footprint_lines, 1) > cfg.footprint:
+            raise ConfigError(_where(source, f"{key}.offset_lines", overridden),
+                              f"{st.offset_lines} + footprint {st.footprint_lines}",
+                              f"a range inside the footprint ({cfg.footprint} lines)")
+    if cfg.streams:
+        for bad, key, allowed in (
+                (cfg.workload.pattern == "trace", "workload.pattern", "a synthetic pattern with [[streams]]"),
+                (cfg.workload.arrival == "closed", "workload.arrival", "an open-loop arrival with [[streams]]"),
+                (cfg.workload.hint_lead_ns > 0, "workload.hint_lead_ns", "0 with [[streams]]"),
+                (cfg.cache.enabled, "cache.enabled", "false with [[streams]] (per-stream keys of a cached "
+                                                     "run are not modeled)"),
+                (sum(st.requests for st in cfg.streams) > MAX_REQUESTS, "streams",
+                 f"at most {MAX_REQUESTS} requests over all streams")):
+            if bad:
+                raise ConfigError(_where(source, key, overridden), "this setting", allowed)
+    k = cfg.cache
+    if k.enabled:
+        if k.capacity_lines * a.line_bytes > MAX_MODELED_BYTES:
+            raise ConfigError(_where(source, "cache.capacity_lines", overridden), str(k.capacity_lines),
+                              f"at most {MAX_MODELED_BYTES >> 30} GiB of cached lines (capacity_lines x "
+                              "array.line_bytes; the content of dirty lines is held in memory)")
+        if k.capacity_lines % k.ways:
+            raise ConfigError(_where(source, "cache.ways", overridden), str(k.ways),
+                              f"a divisor of cache.capacity_lines ({k.capacity_lines})")
+        if cfg.workload.arrival == "closed" and cfg.workload.pattern != "trace":
+            raise ConfigError(_where(source, "cache.enabled", overridden), "true",
+                              "false with workload.arrival closed (the cache acts on arrival times "
+                              "known before the run)")
+        if cfg.controller.hint_preset:
+            raise ConfigError(_where(source, "cache.enabled", overridden), "true",
+                              "false with controller.hint_preset (a write reaches the PCM at its "
+                              "eviction, not after its hint)")
     if cfg.footprint > a.lines:
         raise ConfigError(_where(source, "workload.footprint_lines", overridden),
                           str(cfg.workload.footprint_lines), f"at most array.lines ({a.lines})")

@@ -2,8 +2,8 @@
 
 Every field has a default and a unit (in its name or its description).  The
 sections are ``run``, ``cell``, ``array``, ``controller``, ``write``,
-``workload``, ``refresh``, ``leveling``, ``lifetime``, ``power`` and
-``erase``; unknown keys are rejected.  Cell defaults come from the SLC preset
+``workload``, ``refresh``, ``leveling``, ``lifetime``, ``power``,
+``erase``, ``cache`` and ``energy``; unknown keys are rejected.  Cell defaults come from the SLC preset
 data file so the numbers (and their sources) live in one place.
 
 Fields that name a part (``write.scheme``, ``leveling.scheme``,
@@ -258,6 +258,10 @@ class ArraySection(Section):
     lines: int = Field(65536, ge=16, le=1 << 26,
                        description="Lines modeled with their content (the modeled capacity).")
     bank_hash: bool = Field(False, description="XOR row bits into the bank index.")
+    mapping: Literal["line", "row"] = Field(
+        "line", description="Interleaving order: line = consecutive lines to different channels, then "
+                            "banks; row = a row of row_lines consecutive lines stays in one bank, rows "
+                            "interleaved across channels, then banks (needs row_lines >= 1).")
     row_lines: int = Field(0, ge=0, le=1 << 26, description="Lines per row buffer; 0 = no row buffer.")
     row_hit_ns: float = Field(10.0, gt=0, description="Read latency on a row-buffer hit, ns.")
     burst_ns: float = Field(5.0, ge=0, description="Data-bus time to move one line, ns.")
@@ -400,6 +404,54 @@ class PowerSection(Section):
     scope: Literal["channel", "device"] = Field("device", description="What shares the budget.")
 
 
+class CacheSection(Section):
+    enabled: bool = Field(False, description="A DRAM cache in front of the PCM (write-back, write-allocate; "
+                                             "the PCM sees line fills and dirty evictions only).")
+    capacity_lines: int = Field(16384, ge=1, le=1 << 24, description="Lines the cache holds.")
+    ways: int = Field(16, ge=1, le=4096, description="Lines per set (capacity_lines / ways sets; "
+                                                     "ways = capacity_lines is fully associative).")
+    replacement: Literal["lru", "fifo"] = Field("lru", description="Victim choice: lru (least recently "
+                                                                   "used) or fifo (first in, first out).")
+    hit_ns: float = Field(50.0, gt=0, le=MAX_GAP_NS,
+                          description="Latency of a cache hit and of every write, ns (from memory: a DRAM "
+                                      "access of tens of ns).")
+    access_pj_per_bit: float = Field(4.0, ge=0, description="Energy of a cache line access per bit, pJ "
+                                                            "(from memory: a few pJ per bit for DRAM).")
+
+
+class EnergySection(Section):
+    background_mw_per_bank: float = Field(0.0, ge=0, le=1e6,
+                                          description="Background (standby) power of a bank, mW; "
+                                                      "0 = not counted.")
+    peripheral_pj_per_access: float = Field(0.0, ge=0, description="Decoders, sense and drive circuits per "
+                                                                   "array access (read, write, move, "
+                                                                   "refresh), pJ; 0 = not counted.")
+    io_pj_per_bit: float = Field(0.0, ge=0, description="Data bus and I/O energy per bit moved between "
+                                                        "controller and PCM, pJ; 0 = not counted.")
+    row_hit_pj_per_bit: float | None = Field(
+        None, ge=0, description="Energy per bit of a read served from the open row, pJ; none = charged "
+                                "as a full array read.")
+
+
+class StreamSection(Section):
+    """One request stream of a mix (``[[streams]]``); the rest of ``[workload]`` applies to all."""
+
+    name: str = Field(..., pattern=r"^[A-Za-z0-9_]+$", description="Name of the stream (in its summary keys).")
+    pattern: Literal["uniform", "zipf", "hotspot", "sequential", "strided"] = Field(
+        "uniform", description="Address pattern of the stream.")
+    requests: int = Field(10_000, ge=1, le=MAX_REQUESTS, description="Requests the stream issues (in lines).")
+    read_fraction: float = Field(0.7, ge=0, le=1, description="Share of the stream's requests that are reads.")
+    arrival: Literal["poisson", "fixed", "onoff"] = Field("poisson", description="Arrival process.")
+    interval_ns: float = Field(100.0, gt=0, le=MAX_GAP_NS, description="Mean time between arrivals, ns.")
+    offset_lines: int = Field(0, ge=0, description="First line of the stream's address range.")
+    footprint_lines: int = Field(0, ge=0, description="Lines the stream touches from offset_lines on; "
+                                                      "0 = up to the end of the modeled lines.")
+    zipf_exponent: float = Field(1.0, gt=0, description="Zipf exponent s (pattern zipf).")
+    hot_fraction: float = Field(0.1, gt=0, lt=1, description="Share of the footprint that is hot (hotspot).")
+    hot_share: float = Field(0.9, gt=0, lt=1, description="Share of accesses to hot lines (hotspot).")
+    stride_lines: int = Field(1, ge=1, description="Stride in lines (pattern strided).")
+
+
 class RunConfig(Section):
     """A whole run: memory system plus workload."""
 
@@ -414,6 +466,11 @@ class RunConfig(Section):
     lifetime: LifetimeSection = Field(default_factory=LifetimeSection)
     power: PowerSection = Field(default_factory=PowerSection)
     erase: EraseSection = Field(default_factory=EraseSection)
+    cache: CacheSection = Field(default_factory=CacheSection)
+    energy: EnergySection = Field(default_factory=EnergySection)
+    streams: list[StreamSection] = Field(
+        default_factory=list, description="Mixed streams merged by arrival time ([[streams]]); empty = "
+                                          "the one stream of [workload].")
 
     @property
     def footprint(self) -> int:

@@ -16,6 +16,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from memsim.engine.rows import count_row_hits
 from memsim.workload.chunk import HINT, READ, Chunk
 
 
@@ -87,6 +88,7 @@ def prepare_ops(eng, chunk: Chunk) -> OpColumns:
     r_idx = np.flatnonzero(is_read)
     r_phys = eng.path.leveler.lookup(chunk.line[r_idx])
     r_ch, r_bank, r_row = eng.amap.locate(r_phys)
+    tot.row_hits += count_row_hits(eng.open_rows, r_bank, r_row)
     tot.read_bits += r_idx.size * eng.line_bits
 
     wb = eng.path.apply(chunk.line[w_idx], None if chunk.data is None else chunk.data[w_idx])

@@ -81,6 +81,7 @@ class TimingTotals:
     preset_pj: float = 0.0
     preset_cells: int = 0
     hint_hits: int = 0               # user writes that found their line pre-programmed
+    row_hits: int = 0                # user reads served from the open row (engine/rows.py)
     stream: LatencyStream = field(default_factory=LatencyStream)   # latency and occupancy statistics
 
     @property
@@ -144,7 +145,7 @@ class TimingEngine:
         self.path = path
         self.cell = CellTech.from_config(cfg.cell)
         a = cfg.array
-        self.amap = AddressMap(a.channels, a.banks, a.row_lines, a.bank_hash)
+        self.amap = AddressMap.from_config(a)
         self.line_bits = a.line_bytes * 8
         self.closed = cfg.workload.arrival == "closed"
         # A plain list while running (cheap item updates); numpy at the end.
@@ -167,6 +168,7 @@ class TimingEngine:
         self.extended = (c.write_cancel or c.write_pause or p.budget_ua > 0 or self.out_of_place
                          or self.hint_mode or self.closed_refresh)
         self.erase = EraseAgent(self) if self.out_of_place else None
+        self.open_rows = np.full(self.amap.total_banks, -1, np.int64)   # row each bank's last read opened
 
     # ------------------------------------------------------------ preparation
     def _prepare(self, chunk: Chunk) -> _Prepared:

@@ -6,6 +6,7 @@ from collections.abc import Iterable, Iterator
 import numpy as np
 
 from memsim.config import RunConfig
+from memsim.engine.dram_cache import DramCache
 from memsim.errors import ConfigError, TraceError
 from memsim.experiment.names import check_registered
 from memsim.policy.leveling import Leveler, leveler_names, leveler_params, make_leveler
@@ -17,6 +18,7 @@ from memsim.tech.models import mlc_cell
 from memsim.tech.technology import uses_verify
 from memsim.workload.chunk import WRITE, Chunk
 from memsim.workload.content import DataModel
+from memsim.workload.mix import StreamMerge
 from memsim.workload.synthetic import SyntheticSource
 from memsim.workload.trace import TraceReader, read_trace
 
@@ -192,14 +194,24 @@ class RequestSource:
     reader:
         The :class:`~memsim.workload.trace.TraceReader` of pattern ``trace``,
         else None.
+    mix:
+        The :class:`~memsim.workload.mix.StreamMerge` of ``[[streams]]``
+        (it knows each request's stream), else None.
+    cache:
+        The :class:`~memsim.engine.dram_cache.DramCache` in front of the PCM
+        (``cache.enabled``), else None.  With a cache the chunks are its PCM
+        stream (fills and write-backs), again cut to ``run.chunk_requests``.
     """
 
     def __init__(self, chunks: Iterable[Chunk], chunk_requests: int, content: _Content | None,
-                 reader: TraceReader | None = None) -> None:
+                 reader: TraceReader | None = None, cache: DramCache | None = None,
+                 mix: StreamMerge | None = None) -> None:
         self.chunks = chunks
+        self.mix = mix
         self.chunk_requests = chunk_requests
         self.content = content
         self.reader = reader
+        self.cache = cache
 
     @property
     def bad_lines(self) -> int:
@@ -207,6 +219,14 @@ class RequestSource:
         return self.reader.bad_lines if self.reader is not None else 0
 
     def __iter__(self) -> Iterator[Chunk]:
+        if self.cache is None:
+            yield from self._host()
+        else:
+            # Cut again: the engines' results must not depend on how many
+            # PCM requests each host chunk happened to give.
+            yield from _rechunk(self.cache.run(self._host()), self.chunk_requests)
+
+    def _host(self) -> Iterator[Chunk]:
         try:
             for ch in _rechunk(self.chunks, self.chunk_requests):
                 if self.content is not None and ch.data is None:
@@ -221,7 +241,7 @@ class RequestSource:
 
 
 def build_source(cfg: RunConfig, rng: np.random.Generator | None = None, *,
-                 content: bool = True) -> RequestSource:
+                 content: bool = True, front: bool = True) -> RequestSource:
     """The run's request stream: the synthetic generator, or a trace for pattern ``trace``.
 
     Parameters
@@ -238,6 +258,10 @@ def build_source(cfg: RunConfig, rng: np.random.Generator | None = None, *,
         Attach write content drawn from the data model where the stream has
         none.  ``False`` when only the requests are wanted (a trace without
         content, the wear engine's write stream).
+    front:
+        Put the DRAM cache (``cache.enabled``) in front: the chunks are then
+        the PCM's requests.  ``False`` for the host's own stream (a trace
+        made from the config).
 
     Raises
     ------
@@ -251,9 +275,13 @@ def build_source(cfg: RunConfig, rng: np.random.Generator | None = None, *,
     req_rng, content_rng = source_streams(cfg.run.seed)
     model = DataModel(w.data, cfg.array.line_bytes, w.flip_fraction, w.one_fraction)
     filler = _Content(model, content_rng) if content and w.data != "flip" else None
+    cache = DramCache.from_config(cfg) if front else None
+    if cfg.streams:
+        mix = mixed_streams(cfg)
+        return RequestSource(mix, cfg.run.chunk_requests, filler, cache=cache, mix=mix)
     if w.pattern != "trace":
         src = SyntheticSource(w, cfg.footprint, req_rng, cfg.run.chunk_requests)
-        return RequestSource(src, cfg.run.chunk_requests, filler)
+        return RequestSource(src, cfg.run.chunk_requests, filler, cache=cache)
     if not w.trace:
         raise ConfigError("workload.trace", "nothing",
                           "the path of a trace file when workload.pattern is 'trace'")
@@ -261,7 +289,24 @@ def build_source(cfg: RunConfig, rng: np.random.Generator | None = None, *,
                         line_bytes=cfg.array.line_bytes, footprint=cfg.footprint)
     if reader.has_data:          # reads the header now, outside the engine
         filler = None
-    return RequestSource(reader, cfg.run.chunk_requests, filler, reader)
+    return RequestSource(reader, cfg.run.chunk_requests, filler, reader, cache)
+
+
+_STREAM_KEYS = ("pattern", "requests", "read_fraction", "arrival", "interval_ns", "zipf_exponent",
+                "hot_fraction", "hot_share", "stride_lines")
+
+
+def mixed_streams(cfg: RunConfig) -> StreamMerge:
+    """The ``[[streams]]`` of a config as one merged source (each on its own random stream)."""
+    sources, offsets = [], []
+    for j, st in enumerate(cfg.streams):
+        wl = cfg.workload.model_copy(update={**{k: getattr(st, k) for k in _STREAM_KEYS},
+                                             "hint_lead_ns": 0.0})
+        rng = stream(cfg.run.seed, "requests", j + 1)      # each stream its own draws
+        footprint = st.footprint_lines or cfg.footprint - st.offset_lines
+        sources.append(SyntheticSource(wl, footprint, rng, cfg.run.chunk_requests))
+        offsets.append(st.offset_lines)
+    return StreamMerge(sources, offsets)
 
 
 def source_fields(source: RequestSource) -> dict[str, int]:
@@ -300,18 +345,29 @@ def write_stream(cfg: RunConfig, *, endless: bool = True,
     """
     size = chunk or cfg.run.chunk_requests
     cfg = cfg.model_copy(update={"run": cfg.run.model_copy(update={"chunk_requests": size})})
-    done = 0
-    for ch in build_source(cfg, content=False):
-        done += len(ch)
+    chunks = _host_chunks(cfg, endless)
+    cache = DramCache.from_config(cfg)
+    if cache is not None:
+        # The PCM is written by the cache's evictions of dirty lines only.
+        chunks = cache.run(chunks)
+    for ch in chunks:
         yield ch.line[ch.op == WRITE]
+
+
+def _host_chunks(cfg: RunConfig, endless: bool) -> Iterator[Chunk]:
+    """The host's requests without content (for :func:`write_stream`), endless if asked."""
+    done = 0
+    for ch in build_source(cfg, content=False, front=False):
+        done += len(ch)
+        yield ch
     if not endless or cfg.workload.pattern == "trace":
         return
     # The generator cuts its last chunk short, which changes the draws after
     # it; go on with an endless generator of the same seed from that request.
     wl = cfg.workload.model_copy(update={"requests": 1 << 62})
-    for ch in build_source(cfg.model_copy(update={"workload": wl}), content=False):
+    for ch in build_source(cfg.model_copy(update={"workload": wl}), content=False, front=False):
         if done >= len(ch):
             done -= len(ch)
             continue
         ch, done = ch.take(slice(done, None)), 0
-        yield ch.line[ch.op == WRITE]
+        yield ch

@@ -40,7 +40,7 @@ def check_parts(cfg: RunConfig) -> None:
         build_leveler(cfg, stream(cfg.run.seed, "leveler"))
     if SCHEMES[cfg.write.scheme].out_of_place:
         a, e = cfg.array, cfg.erase
-        amap = AddressMap(a.channels, a.banks, a.row_lines, a.bank_hash)
+        amap = AddressMap.from_config(a)
         _, bank, _ = amap.locate(np.arange(cfg.footprint))
         sizes = np.bincount(bank, minlength=amap.total_banks)
         # The smallest bank is the hardest to fit blocks and spares into.

@@ -19,8 +19,10 @@ from memsim.engine.timing import TimingEngine, TimingTotals
 from memsim.errors import ConfigError
 from memsim.experiment.build import build_path, build_source, source_fields
 from memsim.experiment.checks import check_parts
+from memsim.experiment.front import cache_energy_pj, front_fields, host_counts, stream_fields
 from memsim.experiment.lifetime import lifetime_fields
 from memsim.experiment.progress import track
+from memsim.metrics.energy import periphery_energy
 from memsim.metrics.result import RunResult
 from memsim.policy.refresh import check_refresh_load, plan_refresh
 from memsim.policy.write.bits import popcount_rows
@@ -45,8 +47,14 @@ def resolve(config: str | Path | Mapping | RunConfig | None, overrides: Mapping[
     return cfg
 
 
-def summarize(cfg: RunConfig, tot: TimingTotals, path: WritePath) -> dict[str, Any]:
-    """The flat summary dict of a run (units in the names)."""
+def summarize(cfg: RunConfig, tot: TimingTotals, path: WritePath, cache=None,
+              refreshes: int = 0) -> dict[str, Any]:
+    """The flat summary dict of a run (units in the names).
+
+    Request, latency and cell keys describe the PCM side (with a DRAM cache
+    in front: its fills and write-backs); ``energy_pj`` and
+    ``energy_per_bit_pj`` are of the whole memory per bit the host moved.
+    """
     line_bytes = cfg.array.line_bytes
     sim = tot.simulated_ns
     n = tot.requests
@@ -61,18 +69,34 @@ def summarize(cfg: RunConfig, tot: TimingTotals, path: WritePath) -> dict[str, A
     # Percentiles from the streamed histogram (relative error <= stream.REL_ERROR).
     s.update(tot.stream.stats(READ, "read_latency"))
     s.update(tot.stream.stats(WRITE, "write_latency"))
-    energy = (tot.read_pj + tot.set_pj + tot.reset_pj + tot.mlc_pj + tot.cancelled_pj + tot.preset_pj
-              + tot.refresh_pj + tot.erase_pj)
-    bits = n * line_bytes * 8
+    cache_pj = cache_energy_pj(cfg, cache)
+    span = sim if cache is None else max(sim, cache.last_hit_finish_ns)
+    more = periphery_energy(cfg, read_pj=tot.read_pj, read_bits=tot.read_bits, row_hits=tot.row_hits,
+                            user_reads=tot.reads, user_writes=tot.writes, moves=tot.move_writes,
+                            refreshes=refreshes, span_ns=span)
+    # The cells' parts in their old order first: with the new terms zero the
+    # total is bit for bit what it was before they existed.
+    energy = (more["energy_read_pj"] + tot.set_pj + tot.reset_pj + tot.mlc_pj + tot.cancelled_pj
+              + tot.preset_pj + tot.refresh_pj + tot.erase_pj + more["energy_row_hit_pj"]
+              + more["energy_background_pj"] + more["energy_peripheral_pj"] + more["energy_io_pj"]
+              + cache_pj)
+    bits = sum(host_counts(tot, cache)) * line_bytes * 8
     s.update({
         "energy_pj": energy,
-        "energy_read_pj": tot.read_pj,
+        "energy_read_pj": more["energy_read_pj"],
         "energy_set_pj": tot.set_pj,
         "energy_reset_pj": tot.reset_pj,
         "energy_mlc_program_pj": tot.mlc_pj,
         "energy_cancelled_pj": tot.cancelled_pj,
         "energy_preset_pj": tot.preset_pj,
         "energy_refresh_pj": tot.refresh_pj,
+        "energy_row_hit_pj": more["energy_row_hit_pj"],
+        "energy_background_pj": more["energy_background_pj"],
+        "energy_peripheral_pj": more["energy_peripheral_pj"],
+        "energy_io_pj": more["energy_io_pj"],
+        "energy_cache_pj": cache_pj,
+        "row_hits": more["row_hits"],
+        "row_hit_rate": more["row_hit_rate"],
         "energy_per_bit_pj": energy / bits if bits else 0.0,
         "cells_programmed_per_write": (tot.user_set_cells + tot.user_reset_cells) / tot.writes
         if tot.writes else 0.0,
@@ -182,7 +206,7 @@ def simulate(config: str | Path | Mapping | RunConfig | None = None, **overrides
 def expected_span_ns(cfg: RunConfig) -> float | None:
     """Simulated time an open-loop synthetic run spans (arrivals only); None if not known up front."""
     w = cfg.workload
-    if w.pattern == "trace" or w.arrival == "closed":
+    if w.pattern == "trace" or w.arrival == "closed" or cfg.streams:
         return None
     span = w.requests * w.interval_ns
     if w.arrival == "onoff":
@@ -196,9 +220,15 @@ def _simulate(cfg: RunConfig) -> RunResult:
     source = build_source(cfg)
     try:
         plan = plan_refresh(cfg)
-        total = cfg.workload.requests if cfg.workload.pattern != "trace" else None
+        # With a cache in front the PCM sees fewer requests than the host sends.
+        total = cfg.workload.requests if cfg.workload.pattern != "trace" and source.cache is None else None
+        if cfg.streams:
+            total = sum(st.requests for st in cfg.streams)
         chunks = track(source, total, "req", f"run {cfg.run.name}")
-        engine = make_engine(cfg, chunks, path, plan, stream(cfg.run.seed, "refresh"))
+        # Per-stream keys come from each request's arrival and finish.
+        run_cfg = cfg if not cfg.streams else cfg.model_copy(
+            update={"run": cfg.run.model_copy(update={"keep_requests": True})})
+        engine = make_engine(run_cfg, chunks, path, plan, stream(cfg.run.seed, "refresh"))
         if plan.active:
             lines_per_bank, service = refresh_demand(engine)
             check_refresh_load(plan, lines_per_bank, service, expected_span_ns(cfg))
@@ -206,8 +236,12 @@ def _simulate(cfg: RunConfig) -> RunResult:
     finally:
         if source.reader is not None:
             source.reader.close()       # stop the trace's read-ahead thread on every path
-    summary = summarize(cfg, tot, path)
+    refreshes = engine.agent.refreshes if engine.agent is not None else 0
+    summary = summarize(cfg, tot, path, source.cache, refreshes)
     summary["engine"] = engine.name
+    summary.update(front_fields(cfg, tot, source.cache))
+    if source.mix is not None:
+        summary.update(stream_fields(cfg, tot, source.mix.stream_of_requests()))
     summary.update(refresh_fields(tot, engine.agent, summary))
     summary.update(erase_fields(engine, summary))
     summary.update(source_fields(source))

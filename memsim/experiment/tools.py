@@ -67,7 +67,7 @@ def make_trace(spec: str | os.PathLike[str] | Mapping, out: str | os.PathLike[st
             f"{w.arrival}, run.seed {cfg.run.seed}, line_bytes {cfg.array.line_bytes}; "
             + ("write content stored" if with_data else f"no write content (data model {w.data})"))
     counts = [0, 0, 0]
-    source = build_source(cfg, content=with_data)
+    source = build_source(cfg, content=with_data, front=False)
     try:
         n = write_trace(path, _counted(source, counts), cfg.array.line_bytes, with_data, comment=note)
     except OSError as exc:

@@ -51,6 +51,10 @@ def _num(summary: Mapping, key: str) -> float:
 
 # Order matters: the first section whose rule matches a key takes it.
 SECTIONS: list[_Section] = [
+    # Without a cache the overall_* keys repeat the PCM-side ones: printed only with one.
+    _Section("dram cache", lambda k: k.startswith(("cache_", "overall_")) or k in (
+        "pcm_write_reduction", "energy_cache_pj"), lambda c, s: bool(_get(c, "cache.enabled"))),
+    _Section("mixed streams", _prefix("stream_"), lambda c, s: bool(_get(c, "streams"))),
     _Section("power budget", _prefix("power_wait"),
              lambda c, s: (_get(c, "power.budget_ua", 0) or 0) > 0),
     _Section("write cancellation and pausing",
@@ -76,7 +80,8 @@ SECTIONS: list[_Section] = [
     _Section("requests and throughput",
              lambda k: k in ("engine", "requests", "reads", "writes", "simulated_ns", "throughput_gbps",
                              "requests_per_s", "bank_utilization", "mean_in_system")),
-    _Section("latency", _prefix("read_latency", "write_latency")),
+    _Section("latency", lambda k: k.startswith(("read_latency", "write_latency")) or k in (
+        "row_hits", "row_hit_rate")),
     _Section("energy",
              lambda k: k.startswith("energy") or k in (
                  "cells_programmed_per_write", "set_cells_per_write", "reset_cells_per_write",

@@ -1,0 +1,84 @@
+"""Summary keys of the front end: the host's view of a run with a DRAM cache in front.
+
+Without a cache the host sees the PCM directly, so the ``overall_*`` keys
+equal the PCM-side keys.  With one, the PCM-side keys (``requests``,
+``read_latency_*``, ``writes``, ...) describe the PCM's own traffic (line
+fills and write-backs), and the ``overall_*`` keys what the requester sees:
+hits at the cache's latency, misses at the PCM's.
+"""
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+
+from memsim.config import RunConfig
+from memsim.engine.dram_cache import DramCache, merged_latency
+from memsim.engine.stream import LatencyStream
+from memsim.engine.timing import TimingTotals
+from memsim.workload.chunk import READ, WRITE
+
+
+def host_counts(tot: TimingTotals, cache: DramCache | None) -> tuple[int, int]:
+    """(reads, writes) the host issued."""
+    if cache is None:
+        return tot.reads, tot.writes
+    return cache.read_hits + cache.read_misses, cache.write_hits + cache.write_misses
+
+
+def cache_energy_pj(cfg: RunConfig, cache: DramCache | None) -> float:
+    """Energy of the DRAM cache's line accesses (hits, fills, victims read out), pJ."""
+    if cache is None:
+        return 0.0
+    return cache.accesses() * cfg.array.line_bytes * 8 * cfg.cache.access_pj_per_bit
+
+
+def front_fields(cfg: RunConfig, tot: TimingTotals, cache: DramCache | None) -> dict[str, Any]:
+    """``overall_*`` keys always; ``cache_*`` keys when the cache is on."""
+    reads, writes = host_counts(tot, cache)
+    stream = tot.stream if cache is None else merged_latency(tot.stream, cache.hits)
+    sim = tot.simulated_ns if cache is None else max(tot.simulated_ns, cache.last_hit_finish_ns)
+    n = reads + writes
+    s: dict[str, Any] = {
+        "overall_requests": n,
+        "overall_reads": reads,
+        "overall_writes": writes,
+        "overall_simulated_ns": sim,
+        "overall_throughput_gbps": n * cfg.array.line_bytes / sim if sim > 0 else 0.0,
+    }
+    s.update(stream.stats(READ, "overall_read_latency"))
+    s.update(stream.stats(WRITE, "overall_write_latency"))
+    if cache is None:
+        return s
+    rh, wh = cache.read_hits, cache.write_hits
+    s.update({
+        "cache_read_hit_rate": rh / reads if reads else None,
+        "cache_write_hit_rate": wh / writes if writes else None,
+        "cache_hit_rate": (rh + wh) / n if n else None,
+        "cache_fills": cache.read_misses,
+        "cache_writebacks": cache.writebacks,
+        # Share of the host's line writes the PCM did not have to take.
+        "pcm_write_reduction": 1.0 - cache.writebacks / writes if writes else None,
+    })
+    return s
+
+
+def stream_fields(cfg: RunConfig, tot: TimingTotals, tags: np.ndarray) -> dict[str, Any]:
+    """Per-stream keys of a mix: ``stream_<name>_{requests,reads,writes,throughput_gbps}`` and
+    ``stream_<name>_{read,write}_latency_{mean,p50,p95,p99}_ns`` (same histogram as the totals)."""
+    s: dict[str, Any] = {}
+    sim = tot.simulated_ns
+    for j, st in enumerate(cfg.streams):
+        mine = tags == j
+        op = tot.op[mine]
+        stream = LatencyStream()
+        stream.add(op, tot.arrival_ns[mine], tot.finish_ns[mine])
+        n = int(mine.sum())
+        p = f"stream_{st.name}_"
+        s[p + "requests"] = n
+        s[p + "reads"] = int((op == READ).sum())
+        s[p + "writes"] = int((op == WRITE).sum())
+        s[p + "throughput_gbps"] = n * cfg.array.line_bytes / sim if sim > 0 else 0.0
+        s.update(stream.stats(READ, p + "read_latency"))
+        s.update(stream.stats(WRITE, p + "write_latency"))
+    return s
