@@ -168,28 +168,6 @@ DRIFTING = {"cell.preset": "pcm_mlc2", "array.lines": 1024, "array.banks": 8,
             "array.capacity_gib": 1e4 * 1024 * 64 / 2**30, "workload.interval_ns": 500.0,
             "workload.requests": 4000}
 
-refresh_configs = st.fixed_dictionaries({
-    "run.seed": st.integers(0, 1000),
-    "refresh.policy": st.sampled_from(["periodic", "drift"]),
-    "refresh.interval_s": st.sampled_from([20.0, 60.0]),
-    "refresh.start": st.sampled_from(["spread", "fresh"]),
-    "workload.read_fraction": st.sampled_from([0.5, 0.9, 1.0]),
-    "workload.arrival": st.sampled_from(["poisson", "closed"]),
-    "controller.write_cancel": st.booleans(),
-    # (Budgets or refresh intervals much tighter than these overload the
-    # banks: the refresh backlog then grows for as long as the run lasts.)
-    "power.budget_ua": st.sampled_from([0.0, 100000.0]),
-})
-
-
-@settings(max_examples=12, deadline=None, suppress_health_check=[HealthCheck.too_slow])
-@given(refresh_configs)
-def test_fast_engine_matches_reference_with_refresh(ov):
-    ov = {**DRIFTING, **ov}
-    ref, _ = assert_engines_agree(ov)
-    assert_summaries_agree(ov)
-
-
 def assert_summaries_agree(ov):
     fast = simulate(None, overrides={**ov, "run.engine": "fast"}).summary
     ref = simulate(None, overrides={**ov, "run.engine": "reference"}).summary
@@ -198,17 +176,6 @@ def assert_summaries_agree(ov):
     for k in ref:
         assert _same(fast[k], ref[k]), k
     return ref
-
-
-@pytest.mark.parametrize("extra", [
-    {"refresh.policy": "drift", "workload.read_fraction": 0.9, "refresh.start": "spread"},
-    {"refresh.policy": "periodic", "refresh.interval_s": 20.0, "refresh.start": "spread",
-     "workload.read_fraction": 1.0},
-    {"refresh.policy": "drift", "workload.arrival": "closed", "refresh.start": "spread"},
-], ids=["drift", "periodic", "drift closed loop"])
-def test_refresh_matches_reference(extra):
-    s = assert_summaries_agree({**DRIFTING, **extra})
-    assert s["refreshes"] > 0
 
 
 def test_summary_identical_and_names_engine():
@@ -225,6 +192,7 @@ def test_summary_identical_and_names_engine():
     ({"write.scheme": "block_erase"}, "block erase"),
     ({"controller.hint_preset": True, "workload.hint_lead_ns": 500.0}, "hint"),
     ({"refresh.policy": "scrub"}, "refresh"),
+    ({"refresh.policy": "periodic"}, "refresh"),
 ])
 def test_gap_falls_back_to_reference(extra, gap):
     cfg = load_config(None, {"workload.requests": 2000, **extra})
