@@ -230,6 +230,14 @@ def test_misspelt_sweep_metric_fails_up_front(tmp_path, capsys, monkeypatch):
     assert len(err) < 300                         # the closest keys, not all of them
 
 
+def test_misspelt_compare_metric_fails_before_any_run(tmp_path, capsys, monkeypatch):
+    code, out, err = cli(capsys, monkeypatch, "compare", ROOT / "workloads" / "demo.toml",
+                         "--vary", "write.scheme=full_line,flip_n_write", "--set", "workload.requests=1500",
+                         "--metric", "read_latncy_p99_ns", "--workers", "1", "--out", tmp_path / "c")
+    assert_one_line(code, out, err, "--metric", "'read_latncy_p99_ns'", "read_latency_p99_ns")
+    assert not (tmp_path / "c" / "cache").exists()       # no run was made
+
+
 def test_lifetime_with_write_hints_finishes(tmp_path, capsys, monkeypatch):
     # The wear engine's write stream has no arrival times: hints must not hold it back.
     out = run_ok(capsys, monkeypatch, "lifetime", ROOT / "workloads" / "lifetime_tide_archive.toml",

@@ -181,3 +181,39 @@ def execute(tasks: Sequence[Task], *, workers: int | None = None, scheduler: str
     return Execution(entries, failures, len(todo) - len(failures), reused, reused_runs,
                      executor.name if executor is not None else "the cache", cache_error,
                      [d["traceback"] for d in failures.values() if d.get("traceback")])
+
+
+def probe_metrics(metrics: Sequence[str] | None, tasks: Sequence[Task], where: str,
+                  probe_points: int = 16) -> None:
+    """Raise a ConfigError at ``where`` when a requested metric is no summary key, before any real run.
+
+    The summary keys come from short runs (at most 2,000 requests) of the
+    tasks' configs, taken in order until every requested name has turned up;
+    a config's kind (write scheme, refresh policy, ...) decides its keys, not
+    its length.  After ``probe_points`` distinct configs without a verdict
+    the check is left to the end of the batch.
+    """
+    from memsim.experiment.run import simulate
+
+    if not metrics:
+        return
+    wanted, known = set(metrics), []
+    seen: set[str] = set()
+    for t in tasks:
+        if t.key in seen:
+            continue
+        seen.add(t.key)
+        if len(seen) > probe_points:
+            return
+        cfg = json.loads(json.dumps(t.config))
+        wl = cfg["workload"]
+        wl["requests"] = min(int(wl["requests"]), 2000)
+        try:
+            summary = simulate(cfg).summary
+        except Exception:  # noqa: BLE001 - the real run reports its own failure
+            return
+        known.extend(k for k in summary if k not in known)
+        if wanted <= set(known):
+            return
+    missing = [m for m in metrics if m not in known]
+    raise ConfigError(where, ", ".join(map(repr, missing)), metric_hint(missing, known))

@@ -31,6 +31,7 @@ from memsim.experiment.batch import (
     derive_seeds,
     execute,
     flatten,
+    probe_metrics,
 )
 from memsim.experiment.batch import (
     choose_metrics as _choose_metrics,
@@ -274,6 +275,7 @@ def run_compare(spec: CompareSpec, *, workers: int | None = None, out: str | Pat
         Show a progress bar (None: only on a terminal).
     """
     rows, tasks = plan(spec)
+    probe_metrics(spec.metrics, tasks, where)     # a misspelt metric fails before any real run
     folder = Path(out) if out is not None else None
     cache = RunCache(folder / "cache") if folder is not None else None
     done = execute(tasks, workers=workers, cache=cache, progress=progress, desc=spec.name)

@@ -54,6 +54,7 @@ from memsim.experiment.batch import (
     execute,
     flatten,
     metric_hint,
+    probe_metrics,
 )
 from memsim.experiment.batch import (
     check_key as _check_key,
@@ -290,38 +291,9 @@ def plan(spec: SweepSpec) -> tuple[list[dict[str, Any]], list[Task], list[str]]:
 
 
 def check_metrics(spec: SweepSpec, tasks: Sequence[Task], probe_points: int = 16) -> None:
-    """Raise a ConfigError naming ``sweep.metrics`` when a requested metric is no summary key.
-
-    The summary keys come from short runs (at most 2,000 requests) of the
-    sweep's points, taken in order until every requested name has turned up;
-    a point's kind (write scheme, refresh policy, ...) decides its keys, not
-    its length.  After ``probe_points`` distinct points without a verdict the
-    check is left to the end of the sweep.
-    """
-    from memsim.experiment.run import simulate
-
-    if not spec.metrics:
-        return
-    wanted, known = set(spec.metrics), []
-    seen: set[str] = set()
-    for t in tasks:
-        if t.key in seen:
-            continue
-        seen.add(t.key)
-        if len(seen) > probe_points:
-            return
-        cfg = json.loads(json.dumps(t.config))
-        wl = cfg["workload"]
-        wl["requests"] = min(int(wl["requests"]), 2000)
-        try:
-            summary = simulate(cfg).summary
-        except Exception:  # noqa: BLE001 - the real run reports its own failure
-            return
-        known.extend(k for k in summary if k not in known)
-        if wanted <= set(known):
-            return
-    missing = [m for m in spec.metrics if m not in known]
-    raise ConfigError(f"{spec.source}: sweep.metrics", ", ".join(map(repr, missing)), metric_hint(missing, known))
+    """Raise a ConfigError naming ``sweep.metrics`` when a requested metric is no summary key
+    (short probe runs before the sweep: :func:`memsim.experiment.batch.probe_metrics`)."""
+    probe_metrics(spec.metrics, tasks, f"{spec.source}: sweep.metrics", probe_points)
 
 
 def run_sweep(spec: SweepSpec, *, workers: int | None = None, scheduler: str | None = None,
