@@ -651,6 +651,12 @@ def lifetime_fields(cfg: RunConfig, path: WritePath, write_bytes_per_s: float) -
             out[k] = None
         out["lifetime_note"] = "no writes reached the memory in the run: no wear to extrapolate"
         return out
+    if cfg.workload.sizing == "device_lines":
+        from memsim.experiment.fixed_lifetime import device_lines_fields
+
+        law = DeathLaw(_endurance(cfg), n_cells, cfg.lifetime.ecp_entries, profile)
+        out.update(device_lines_fields(cfg, law, rate, _seeds(cfg.run.seed)["stream"]))
+        return out
     note = _too_short(wear, out["lifetime_window_cycles"], cfg.lifetime.timing_max_noise)
     if not note and not lv.scale_free() and scale.traffic == "spread" and scale.copies > 1:
         note = (f"no lifetime from a timing run with {lv.name}: it remaps the modeled lines only, a cycle "
@@ -897,6 +903,12 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
                      or (lv.name == "region_start_gap" and lv.perm is None and lt.capacity_loss == 0))
                     and scale.traffic == "spread")
     s["lifetime_leveling_scale"] = "device" if device_scale else "modeled"
+    if cfg.workload.sizing == "device_lines":
+        from memsim.experiment.fixed_lifetime import device_lines_fields
+
+        s.update(device_lines_fields(cfg, law, rate, seeds["stream"]))
+        s["lifetime_ideal_years"] = ideal_years
+        method = "none"      # the modeled wear below is kept for its statistics only
     if not device_scale and not lv.scale_free() and scale.traffic == "spread" and scale.copies > 1:
         # The leveler ran on the modeled lines: its cycle is far shorter than
         # on the device, so its figure would look better than the device's.

@@ -1,0 +1,167 @@
+"""Workloads sized in device lines (workload.sizing = device_lines): lifetime at device scale."""
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from conftest import DEMO, memsim_cli
+
+from memsim.engine import fixed_wear as fw
+from memsim.engine.device_wear import start_gap_device_wear
+from memsim.experiment.lifetime import lifetime
+from memsim.workload.device_traffic import DeviceTraffic, _runs, device_traffic, zipf_runs
+
+LEVELERS = ("none", "start_gap", "randomized_start_gap", "security_refresh")
+PATTERNS = {
+    "uniform": {},
+    "zipf": {"workload__hot_layout": "contiguous"},
+    "hot_region": {"workload__pattern": "hotspot", "workload__hot_layout": "contiguous",
+                   "workload__hot_lines": 4, "workload__hot_share": 0.5},
+}
+
+
+def _life(lines: int, leveler: str, pattern: str) -> dict:
+    kw = {"workload__pattern": pattern, **PATTERNS[pattern]}
+    return lifetime(None, write_rate_gbps=1.0, method="extrapolated", array__lines=lines,
+                    array__capacity_gib=1.0, workload__sizing="device_lines", workload__requests=4000,
+                    leveling__scheme=leveler, **kw).summary
+
+
+@pytest.mark.parametrize("pattern", list(PATTERNS))
+@pytest.mark.parametrize("leveler", LEVELERS)
+def test_lifetime_does_not_depend_on_the_modeled_line_count(leveler: str, pattern: str) -> None:
+    # A workload fixed in device lines on a fixed device: array.lines 16-fold
+    # apart must give the same lifetime (within 5%) or null with a note at both.
+    a, b = _life(256, leveler, pattern), _life(4096, leveler, pattern)
+    if a["lifetime_years"] is None or b["lifetime_years"] is None:
+        assert a["lifetime_years"] is None and b["lifetime_years"] is None
+        assert a["lifetime_note"] and b["lifetime_note"]
+        return
+    assert b["lifetime_years"] == pytest.approx(a["lifetime_years"], rel=0.05)
+    assert a["lifetime_leveling_scale"] == "device"
+
+
+def test_which_combinations_give_a_number() -> None:
+    # Uniform traffic: every leveler; the small hot region: no leveling, plain
+    # and randomized Start-Gap.  Security Refresh over the device cannot keep
+    # a hot line's writes of one round small against its endurance: null.
+    for lv in LEVELERS:
+        assert _life(256, lv, "uniform")["lifetime_years"] > 0
+    for lv in ("none", "start_gap", "randomized_start_gap"):
+        assert _life(256, lv, "hot_region")["lifetime_years"] > 0
+    assert _life(256, "security_refresh", "hot_region")["lifetime_note"]
+
+
+def test_start_gap_uniform_is_psi_over_psi_plus_one_of_no_leveling() -> None:
+    # Uniform full-line traffic: Start-Gap adds one gap move per psi writes,
+    # so lifetime is psi / (psi + 1) of perfect leveling (Qureshi et al., MICRO 2009).
+    none = _life(256, "none", "uniform")["lifetime_years"]
+    sg = _life(256, "start_gap", "uniform")["lifetime_years"]
+    assert sg / none == pytest.approx(100 / 101, rel=1e-3)
+
+
+def _hot(d: int, h: int, phi: float, at: int = 1000) -> DeviceTraffic:
+    b, r = _runs(np.array([at]), np.array([h]), np.array([phi / h]), d, (1 - phi) / (d - h))
+    return DeviceTraffic(b, r, True)
+
+
+def _sharp(x_death: float):
+    # No endurance spread: every line dies at x_death write equivalents.
+    return lambda x: (np.asarray(x) >= x_death).astype(np.float64)
+
+
+def test_start_gap_hot_region_closed_form() -> None:
+    # Derived from the Start-Gap registers (Qureshi et al., MICRO 2009): with
+    # G = (D + 1) psi device writes per gap cycle, Start advances K = W / G
+    # lines over W writes.  The physical line above a contiguous region of h
+    # lines with share phi takes every write of the K logical lines below it:
+    #   K <= h: wear = W phi / h + K                 (no spreading at all)
+    #   K >  h: wear = G phi + (W - G h) v_c + K      (the region spread over K lines)
+    # with v_c = (1 - phi) / (D - h); life ends when that reaches the death wear X.
+    d, h, psi, x = 1 << 24, 64, 100, 1e8
+    g = (d + 1.0) * psi
+    phi = 0.5
+    w = fw.start_gap_writes(_hot(d, h, phi), _sharp(x), 1, psi)
+    closed = x / (phi / h + 1 / g)
+    assert w / g < h
+    assert w == pytest.approx(closed, rel=1e-6)
+    phi = 0.05
+    vc = (1 - phi) / (d - h)
+    w = fw.start_gap_writes(_hot(d, h, phi), _sharp(x), 1, psi)
+    closed = (x - g * phi + g * h * vc) / (vc + 1 / g)
+    assert w / g > h
+    assert w == pytest.approx(closed, rel=1e-6)
+
+
+def test_randomized_start_gap_removes_the_hot_region_effect() -> None:
+    # The static randomizer scatters the region's lines: a hot line then
+    # wears a physical line for one gap cycle only, G phi / h, far below the
+    # death wear, while plain Start-Gap keeps the whole region above one line.
+    d, h, psi, x = 1 << 24, 64, 100, 1e8
+    cdf = _sharp(x)
+    sg = fw.start_gap_writes(_hot(d, h, 0.5), cdf, 1, psi)
+    none = fw.none_writes(_hot(d, h, 0.5), cdf, 1)
+    rsg = fw.randomized_start_gap_writes(_hot(d, h, 0.5), cdf, 1, psi)
+    assert sg == pytest.approx(none, rel=1e-3)          # no better than no leveling
+    assert rsg > 1000 * sg
+    # Where the region sits, or whether it is one run at all, does not matter to it.
+    rng = np.random.default_rng(3)
+    scattered = device_traffic(_Wl("hotspot", "scattered", h, 0.5), d, rng)
+    assert fw.randomized_start_gap_writes(scattered, cdf, 1, psi) == pytest.approx(rsg, rel=1e-9)
+    assert fw.randomized_start_gap_writes(_hot(d, h, 0.5, at=d // 3), cdf, 1, psi) == pytest.approx(rsg, rel=1e-9)
+
+
+class _Wl:
+    def __init__(self, pattern: str, layout: str, hot_lines: int, hot_share: float, zipf_exponent: float = 1.0):
+        self.pattern, self.hot_layout, self.hot_lines = pattern, layout, hot_lines
+        self.hot_share, self.zipf_exponent = hot_share, zipf_exponent
+
+
+def test_start_gap_wear_agrees_with_the_block_form_at_one_line_per_block() -> None:
+    # Cross-check with memsim.engine.device_wear (checked there against a
+    # replay of the real leveler): one modeled line per device line.
+    n, psi = 4096, 100
+    rates = np.full(n, 0.5 / (n - 8))
+    rates[100:108] = 0.5 / 8
+    t = _hot(n, 8, 0.5, at=100)
+    for w in (1e6, 3e7, 1e9, 5e10):
+        a = start_gap_device_wear(rates, w, psi, 1.0)
+        b = fw.start_gap_wear(t, np.arange(n), w, psi)
+        assert b.max() == pytest.approx(a.max(), rel=1e-3)
+
+
+def test_zipf_runs_hold_the_zipf_shares() -> None:
+    # Shares k^-s / H_{d,s} (the Zipf law); generalized harmonic number summed directly.
+    d, s = 200_000, 1.0
+    b, r = zipf_runs(d, s)
+    k = np.arange(1, d + 1, dtype=np.float64)
+    exact = k**-s / np.sum(k**-s)
+    assert np.sum(r * np.diff(b)) == pytest.approx(1.0, rel=1e-12)
+    assert r[0] == pytest.approx(exact[0], rel=1e-4)
+    mid = np.searchsorted(b, 150_000, side="right") - 1
+    assert r[mid] == pytest.approx(exact[b[mid]:b[mid + 1]].mean(), rel=1e-4)
+
+
+def test_timing_run_lifetime_keys_follow_the_device_layout() -> None:
+    from memsim.experiment.run import simulate
+
+    s = [simulate(None, array__lines=n, array__capacity_gib=1.0, workload__requests=3000,
+                  workload__sizing="device_lines", workload__pattern="hotspot",
+                  workload__hot_layout="contiguous", workload__hot_lines=4, lifetime__write_rate_gbps=1.0,
+                  leveling__scheme="start_gap").summary for n in (256, 4096)]
+    assert s[0]["lifetime_years"] == pytest.approx(s[1]["lifetime_years"], rel=0.05)
+    assert s[0]["lifetime_traffic"] == "device_lines"
+
+
+@pytest.mark.parametrize("over, key", [
+    (("workload.sizing=device_lines", "workload.pattern=sequential"), "workload.sizing"),
+    (("workload.sizing=device_lines", "workload.footprint_lines=100"), "workload.footprint_lines"),
+    (("workload.sizing=device_lines", "workload.size_lines=2"), "workload.size_lines"),
+    (("workload.sizing=device_lines", "workload.pattern=hotspot", "workload.hot_lines=100000000000000"),
+     "workload.hot_lines"),
+    (("workload.sizing=lines",), "workload.sizing"),
+])
+def test_bad_sizing_is_one_line_naming_the_key(over: tuple, key: str, tmp_path) -> None:
+    args = [a for o in over for a in ("--set", o)]
+    r = memsim_cli("lifetime", DEMO, *args, "--write-rate", "1", "--out", tmp_path / "out")
+    assert r.code == 2
+    assert r.err.count("\n") == 1 and key in r.err
