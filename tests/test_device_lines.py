@@ -165,3 +165,24 @@ def test_bad_sizing_is_one_line_naming_the_key(over: tuple, key: str, tmp_path) 
     r = memsim_cli("lifetime", DEMO, *args, "--write-rate", "1", "--out", tmp_path / "out")
     assert r.code == 2
     assert r.err.count("\n") == 1 and key in r.err
+
+
+def test_fold_puts_a_small_hot_region_on_one_or_two_modeled_lines() -> None:
+    from memsim.config import RunConfig
+    from memsim.workload.device_traffic import folded_address
+
+    cfg = RunConfig.model_validate({"array": {"lines": 1024, "capacity_gib": 1.0},
+                                    "workload": {"pattern": "hotspot", "sizing": "device_lines",
+                                                 "hot_layout": "contiguous", "hot_lines": 4, "hot_share": 0.5}})
+    fold = folded_address(cfg, 1024)
+    e = fold.expected_shares()
+    assert e.sum() == pytest.approx(1.0, rel=1e-12)
+    hot = np.sort(e)[::-1]
+    # Half the writes on the 4 hot device lines, the rest spread over 2^24 - 4.
+    assert hot[:2].sum() == pytest.approx(0.5 + 2 * 0.5 * (1 << 14) / ((1 << 24) - 4), rel=1e-3)
+    # Draws follow the expected shares (binomial 5-sigma bound on the hot lines' count).
+    x = fold.draw(np.random.default_rng(5), 200_000)
+    top = np.argsort(e)[::-1][:2]
+    got = np.isin(x, top).mean()
+    assert abs(got - hot[:2].sum()) < 5 * np.sqrt(0.25 / 200_000)
+    assert x.min() >= 0 and x.max() < 1024

@@ -16,6 +16,7 @@ from memsim.tech.models import mlc_cell
 from memsim.tech.technology import uses_verify
 from memsim.workload.chunk import WRITE, Chunk
 from memsim.workload.content import DataModel
+from memsim.workload.device_traffic import folded_address
 from memsim.workload.synthetic import SyntheticSource
 from memsim.workload.trace import TraceReader, read_trace
 
@@ -240,7 +241,8 @@ def build_source(cfg: RunConfig, rng: np.random.Generator | None = None, *,
     model = DataModel(w.data, cfg.array.line_bytes, w.flip_fraction, w.one_fraction)
     filler = _Content(model, content_rng) if content and w.data != "flip" else None
     if w.pattern != "trace":
-        src = SyntheticSource(w, cfg.footprint, req_rng, cfg.run.chunk_requests)
+        src = SyntheticSource(w, cfg.footprint, req_rng, cfg.run.chunk_requests,
+                              address=folded_address(cfg, cfg.footprint))
         return RequestSource(src, cfg.run.chunk_requests, filler)
     if not w.trace:
         raise ConfigError("workload.trace", "nothing",

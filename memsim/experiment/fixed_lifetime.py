@@ -24,7 +24,7 @@ from memsim.engine.fixed_wear import (
 )
 from memsim.metrics.lifetime import writes_to_years
 from memsim.units import GIB
-from memsim.workload.device_traffic import device_traffic
+from memsim.workload.device_traffic import device_traffic, layout_rng
 
 SUPPORTED = ("none", "start_gap", "randomized_start_gap", "security_refresh")
 _KEYS = ("lifetime_years", "lifetime_first_failure_years", "lifetime_vs_ideal", "lifetime_vs_even_wear")
@@ -34,17 +34,15 @@ def device_line_count(cfg: RunConfig) -> int:
     return int(cfg.array.capacity_gib * GIB // cfg.array.line_bytes)
 
 
-def device_lines_fields(cfg: RunConfig, law, rate_bytes_per_s: float,
-                        seed: np.random.SeedSequence) -> dict[str, Any]:
+def device_lines_fields(cfg: RunConfig, law, rate_bytes_per_s: float) -> dict[str, Any]:
     """``lifetime_*`` summary fields for a device-lines-sized workload.
 
-    ``law`` is the line death law (:class:`memsim.experiment.lifetime.DeathLaw`),
-    ``seed`` places the hot region (the stream's seed).
+    ``law`` is the line death law (:class:`memsim.experiment.lifetime.DeathLaw`).
     """
     d = device_line_count(cfg)
     lv = cfg.leveling
     needed = int(np.floor(cfg.lifetime.capacity_loss * d)) + 1
-    traffic = device_traffic(cfg.workload, d, np.random.default_rng(seed))
+    traffic = device_traffic(cfg.workload, d, layout_rng(cfg.run.seed))
     out: dict[str, Any] = {"lifetime_leveling_scale": "device", "lifetime_traffic": "device_lines",
                            "device_lines": float(d), "lifetime_note": None}
     name = lv.scheme

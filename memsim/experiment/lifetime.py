@@ -110,6 +110,7 @@ from memsim.tech.endurance import EnduranceModel
 from memsim.units import GIB
 from memsim.workload.attacks import ATTACKS
 from memsim.workload.chunk import WRITE
+from memsim.workload.device_traffic import folded_address
 from memsim.workload.synthetic import SyntheticSource
 
 METHODS = ("both", "extrapolated", "run_to_failure")
@@ -655,7 +656,7 @@ def lifetime_fields(cfg: RunConfig, path: WritePath, write_bytes_per_s: float) -
         from memsim.experiment.fixed_lifetime import device_lines_fields
 
         law = DeathLaw(_endurance(cfg), n_cells, cfg.lifetime.ecp_entries, profile)
-        out.update(device_lines_fields(cfg, law, rate, _seeds(cfg.run.seed)["stream"]))
+        out.update(device_lines_fields(cfg, law, rate))
         return out
     note = _too_short(wear, out["lifetime_window_cycles"], cfg.lifetime.timing_max_noise)
     if not note and not lv.scale_free() and scale.traffic == "spread" and scale.copies > 1:
@@ -779,7 +780,8 @@ def write_stream(cfg: RunConfig, seed: np.random.SeedSequence,
     # No hints: they name no new line, and without arrival times they would be
     # held back for ever.
     wl = cfg.workload.model_copy(update={"arrival": "closed", "requests": 1 << 62, "hint_lead_ns": 0.0})
-    source = SyntheticSource(wl, cfg.footprint, np.random.default_rng(seed), chunk)
+    source = SyntheticSource(wl, cfg.footprint, np.random.default_rng(seed), chunk,
+                             address=folded_address(cfg, cfg.footprint))
     for c in source:
         yield c.line[c.op == WRITE]
 
@@ -906,7 +908,7 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
     if cfg.workload.sizing == "device_lines":
         from memsim.experiment.fixed_lifetime import device_lines_fields
 
-        s.update(device_lines_fields(cfg, law, rate, seeds["stream"]))
+        s.update(device_lines_fields(cfg, law, rate))
         s["lifetime_ideal_years"] = ideal_years
         method = "none"      # the modeled wear below is kept for its statistics only
     if not device_scale and not lv.scale_free() and scale.traffic == "spread" and scale.copies > 1:

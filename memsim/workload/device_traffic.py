@@ -141,3 +141,42 @@ def _distinct(rng: np.random.Generator, d: int, h: int) -> np.ndarray:
     while out.size < h:
         out = np.unique(np.concatenate([out, rng.integers(0, d, size=h - out.size)]))
     return out
+
+
+def layout_rng(seed: int) -> np.random.Generator:
+    """Generator that places the hot region on the device: the timing run's
+    folded stream and the lifetime evaluation see the same place."""
+    return np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(0x6C61,)))
+
+
+class FoldedAddress:
+    """Device-line traffic folded onto ``modeled`` lines for the timing run.
+
+    Device line ``q`` of ``D`` is modeled line ``floor(q N / D)``: each
+    modeled line stands for a run of about ``D / N`` adjacent device lines
+    and takes their summed traffic, so a hot region of a few device lines
+    lands on one or two modeled lines.  Same interface as
+    :class:`memsim.workload.synthetic.AddressPattern` (``draw``,
+    ``expected_shares``).
+    """
+
+    def __init__(self, traffic: DeviceTraffic, modeled: int) -> None:
+        self.traffic, self.footprint = traffic, int(modeled)
+
+    def draw(self, rng: np.random.Generator, n: int) -> np.ndarray:
+        q = self.traffic.sample(rng, n)
+        return (q * self.footprint // self.traffic.lines).astype(np.int64)
+
+    def expected_shares(self) -> np.ndarray:
+        d, n = self.traffic.lines, self.footprint
+        # Modeled line i holds device lines ceil(i D / N) .. ceil((i + 1) D / N) - 1.
+        edges = -(-(np.arange(n + 1, dtype=np.int64) * d) // n)
+        return np.diff(self.traffic.cumulative(edges.astype(np.float64)))
+
+
+def folded_address(cfg, modeled: int) -> FoldedAddress | None:
+    """The folded device traffic of ``cfg`` (a RunConfig), or None unless sized in device lines."""
+    if cfg.workload.sizing != "device_lines":
+        return None
+    d = int(cfg.array.capacity_gib * 2**30 // cfg.array.line_bytes)
+    return FoldedAddress(device_traffic(cfg.workload, d, layout_rng(cfg.run.seed)), modeled)
