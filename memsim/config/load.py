@@ -212,13 +212,13 @@ def _check_sizing(cfg: RunConfig, source: str, overridden: set[str]) -> None:
     w = cfg.workload
     if w.sizing != "device_lines":
         return
-    if w.pattern not in ("uniform", "zipf", "hotspot"):
+    if w.pattern not in ("uniform", "zipf", "hotspot", "trace"):
         raise ConfigError(_where(source, "workload.sizing", overridden), f"device_lines with pattern {w.pattern}",
-                          "device_share, or device_lines with pattern uniform, zipf or hotspot")
+                          "device_share, or device_lines with pattern uniform, zipf, hotspot or trace")
     if w.footprint_lines:
         raise ConfigError(_where(source, "workload.footprint_lines", overridden), str(w.footprint_lines),
                           "0 with workload.sizing = device_lines (the traffic spans the device)")
-    if w.size_lines != 1:
+    if w.size_lines != 1 and w.pattern != "trace":
         raise ConfigError(_where(source, "workload.size_lines", overridden), str(w.size_lines),
                           "1 with workload.sizing = device_lines")
     device = int(cfg.array.capacity_gib * 2**30 // cfg.array.line_bytes)

@@ -146,17 +146,41 @@ def randomized_start_gap_writes(traffic: DeviceTraffic, cdf: DeathCdf, needed: i
                 return d * float(np.dot(pm, cdf(np.maximum(wear, 0.0))))
 
             return _bisect(expected_dead, target_dead(needed), d)
-    from memsim.engine.device_wear import randomized_start_gap_device_lifetime
+    return _randomized_normal(traffic, cdf, needed, psi, max_skew)
 
-    # Runs of equal length would be needed for its block form; expand the
-    # distinct rates to weights of a common block instead.
-    c = traffic.counts
-    unit = float(np.gcd.reduce(traffic.counts.astype(np.int64)))
-    reps = (c / unit).astype(np.int64)
-    if reps.sum() > 1 << 22:
-        return float("nan")
-    rates = np.repeat(traffic.rate * unit, reps)
-    return randomized_start_gap_device_lifetime(rates, cdf, needed, psi, unit, max_skew)
+
+def _randomized_normal(traffic: DeviceTraffic, cdf: DeathCdf, needed: int, psi: int,
+                       max_skew: float) -> float:
+    """The normal approximation of
+    :func:`memsim.engine.device_wear.randomized_start_gap_device_lifetime`,
+    with the moments of the device rates taken over the runs (weighted by
+    their lengths); NaN where the window sum is too skewed for it."""
+    d = float(traffic.lines)
+    g = (d + 1.0) * psi
+    c, v = traffic.counts, traffic.rate
+    mu = 1.0 / d
+    var = max(float(np.dot(c, v * v)) / d - mu * mu, 0.0)
+    m3 = float(np.dot(c, (v - mu) ** 3)) / d
+    z, wz = np.polynomial.hermite_e.hermegauss(96)
+    wz = wz / np.sqrt(2.0 * np.pi)
+
+    def expected_dead(w: float) -> float:
+        k = w / g
+        x = k - np.floor(k / d) * d
+        mean = g * (np.floor(k / d) + x * mu) + k
+        sd = g * np.sqrt(x * var * max(0.0, 1.0 - x / d))
+        return d * float(np.dot(wz, cdf(np.maximum(mean + sd * z, 0.0))))
+
+    w = _bisect(expected_dead, target_dead(needed), d)
+    k = w / g
+    x = k - np.floor(k / d) * d
+    if var > 0 and 0 < x < d:
+        # Skewness of a sum of x draws without replacement from the d rates:
+        # gamma_1 (1 - 2 f) / sqrt(x (1 - f)), f = x / d (as in device_wear).
+        f = x / d
+        if abs(m3 / var**1.5 * (1 - 2 * f) / np.sqrt(x * (1 - f))) > max_skew:
+            return float("nan")
+    return w
 
 
 def security_refresh_writes(traffic: DeviceTraffic, cdf: DeathCdf, needed: int, interval: int,

@@ -247,11 +247,20 @@ def build_source(cfg: RunConfig, rng: np.random.Generator | None = None, *,
     if not w.trace:
         raise ConfigError("workload.trace", "nothing",
                           "the path of a trace file when workload.pattern is 'trace'")
+    device = w.sizing == "device_lines"
+    d = int(cfg.array.capacity_gib * 2**30 // cfg.array.line_bytes)
     reader = read_trace(w.trace, chunk_size=cfg.run.chunk_requests, skip_bad=w.skip_bad,
-                        line_bytes=cfg.array.line_bytes, footprint=cfg.footprint)
+                        line_bytes=cfg.array.line_bytes, footprint=d if device else cfg.footprint)
     if reader.has_data:          # reads the header now, outside the engine
         filler = None
-    return RequestSource(reader, cfg.run.chunk_requests, filler, reader)
+    chunks = fold_chunks(reader, cfg.footprint, d) if device else reader
+    return RequestSource(chunks, cfg.run.chunk_requests, filler, reader)
+
+
+def fold_chunks(chunks: Iterable[Chunk], modeled: int, device: int) -> Iterator[Chunk]:
+    """Device line ``q`` onto modeled line ``floor(q N / D)`` (runs of adjacent device lines)."""
+    for ch in chunks:
+        yield Chunk(ch.time_ns, ch.op, (ch.line * modeled // device).astype(np.int64), ch.data)
 
 
 def source_fields(source: RequestSource) -> dict[str, int]:

@@ -4,7 +4,10 @@ The traffic is laid out on the device's own lines
 (:mod:`memsim.workload.device_traffic`) and the leveler evaluated on them
 (:mod:`memsim.engine.fixed_wear`), so ``array.lines`` does not enter the
 lifetime at all.  Estimates are medians of the end-of-life wear (no cell
-draws).  Levelers other than none, start_gap, randomized_start_gap and
+draws).  A trace's lines are device lines here; its traffic is each written
+device line's counted share over one pass of the trace (the timing run
+folds device line ``q`` onto modeled line ``floor(q N / D)``, see
+:func:`memsim.experiment.build.fold_chunks`).  Levelers other than none, start_gap, randomized_start_gap and
 security_refresh (one region), and start_gap under a scattered Zipf
 layout (the ranks' places are not kept), give null with a note.
 """
@@ -24,7 +27,7 @@ from memsim.engine.fixed_wear import (
 )
 from memsim.metrics.lifetime import writes_to_years
 from memsim.units import GIB
-from memsim.workload.device_traffic import device_traffic, layout_rng
+from memsim.workload.device_traffic import device_traffic, layout_rng, trace_traffic
 
 SUPPORTED = ("none", "start_gap", "randomized_start_gap", "security_refresh")
 _KEYS = ("lifetime_years", "lifetime_first_failure_years", "lifetime_vs_ideal", "lifetime_vs_even_wear")
@@ -32,6 +35,18 @@ _KEYS = ("lifetime_years", "lifetime_first_failure_years", "lifetime_vs_ideal", 
 
 def device_line_count(cfg: RunConfig) -> int:
     return int(cfg.array.capacity_gib * GIB // cfg.array.line_bytes)
+
+
+def _trace_writes(cfg: RunConfig, d: int) -> np.ndarray:
+    """Device lines of every write of the trace, one pass (addresses are device lines)."""
+    from memsim.workload.chunk import WRITE
+    from memsim.workload.trace_reader import read_trace
+
+    w = cfg.workload
+    reader = read_trace(w.trace, chunk_size=cfg.run.chunk_requests, skip_bad=w.skip_bad,
+                        line_bytes=cfg.array.line_bytes, footprint=d)
+    parts = [ch.line[ch.op == WRITE] for ch in reader]
+    return np.concatenate(parts) if parts else np.zeros(0, dtype=np.int64)
 
 
 def device_lines_fields(cfg: RunConfig, law, rate_bytes_per_s: float) -> dict[str, Any]:
@@ -42,7 +57,10 @@ def device_lines_fields(cfg: RunConfig, law, rate_bytes_per_s: float) -> dict[st
     d = device_line_count(cfg)
     lv = cfg.leveling
     needed = int(np.floor(cfg.lifetime.capacity_loss * d)) + 1
-    traffic = device_traffic(cfg.workload, d, layout_rng(cfg.run.seed))
+    if cfg.workload.pattern == "trace":
+        traffic = trace_traffic(_trace_writes(cfg, d), d)
+    else:
+        traffic = device_traffic(cfg.workload, d, layout_rng(cfg.run.seed))
     out: dict[str, Any] = {"lifetime_leveling_scale": "device", "lifetime_traffic": "device_lines",
                            "device_lines": float(d), "lifetime_note": None}
     name = lv.scheme

@@ -143,6 +143,13 @@ def _distinct(rng: np.random.Generator, d: int, h: int) -> np.ndarray:
     return out
 
 
+def trace_traffic(lines: np.ndarray, d: int) -> DeviceTraffic:
+    """Write shares of a trace's device lines (``lines``: the device line of every write)."""
+    q, n = np.unique(np.asarray(lines, dtype=np.int64), return_counts=True)
+    b, r = _runs(q, np.ones(q.size, dtype=np.int64), n / n.sum(), d, 0.0)
+    return DeviceTraffic(b, r, True)
+
+
 def layout_rng(seed: int) -> np.random.Generator:
     """Generator that places the hot region on the device: the timing run's
     folded stream and the lifetime evaluation see the same place."""
