@@ -237,3 +237,13 @@ def test_trace_line_beyond_the_device_is_one_line_error(tmp_path) -> None:
                    "--set", "workload.sizing=device_lines", "--set", "array.capacity_gib=1",
                    "--out", tmp_path / "o")
     assert r.code == 2 and r.err.count("\n") == 1 and "t.csv" in r.err
+
+
+def test_levelers_without_a_device_lines_evaluation_give_null_with_a_note() -> None:
+    from memsim.experiment.run import simulate
+
+    s = _life(256, "hot_cold_swap", "uniform")
+    assert s["lifetime_years"] is None and "not evaluated" in s["lifetime_note"]
+    t = simulate(None, array__lines=256, array__capacity_gib=1.0, workload__requests=2000,
+                 workload__sizing="device_lines", leveling__scheme="hot_cold_swap").summary
+    assert t["lifetime_years"] is None and "not evaluated" in t["lifetime_note"]

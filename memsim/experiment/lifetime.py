@@ -905,12 +905,6 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
                      or (lv.name == "region_start_gap" and lv.perm is None and lt.capacity_loss == 0))
                     and scale.traffic == "spread")
     s["lifetime_leveling_scale"] = "device" if device_scale else "modeled"
-    if cfg.workload.sizing == "device_lines":
-        from memsim.experiment.fixed_lifetime import device_lines_fields
-
-        s.update(device_lines_fields(cfg, law, rate))
-        s["lifetime_ideal_years"] = ideal_years
-        method = "none"      # the modeled wear below is kept for its statistics only
     if not device_scale and not lv.scale_free() and scale.traffic == "spread" and scale.copies > 1:
         # The leveler ran on the modeled lines: its cycle is far shorter than
         # on the device, so its figure would look better than the device's.
@@ -920,6 +914,12 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
                               f"{scale.copies:.0f}x shorter than the device's; set array.lines to the device's "
                               f"line count ({scale.device_lines:.0f}) for a direct evaluation")
         method = "none"
+    if cfg.workload.sizing == "device_lines":
+        from memsim.experiment.fixed_lifetime import device_lines_fields
+
+        s.update(device_lines_fields(cfg, law, rate))
+        s["lifetime_ideal_years"] = ideal_years
+        method = "none"      # the modeled wear below is kept for its statistics only
     if method in ("both", "extrapolated"):
         if device_scale and lv.name == "none":
             # No remapping: each line wears at its own expected share (no window noise).
