@@ -32,6 +32,7 @@ STREAMS: dict[str, str] = {
     "endurance": "cell endurance and line death draws of the lifetime estimate",
     "profile": "the lifetime's short write-scheme pass that measures cells per write",
     "replicas": "seeds of the replications of a sweep or compare",
+    "hot_layout": "where a hot region of fixed size sits on the device (workload.sizing device_lines)",
 }
 
 

@@ -219,6 +219,26 @@ def validate(data: dict, source: str = "<config>", overridden: set[str] | None =
 PER_LEVEL = ("program_sigma_decades", "pv_mean_iterations", "pulse_ns", "pulse_pj", "drift_nu")
 
 
+def _check_sizing(cfg: RunConfig, source: str, overridden: set[str]) -> None:
+    """Workloads sized in device lines: the patterns and sizes that have a device layout."""
+    w = cfg.workload
+    if w.sizing != "device_lines":
+        return
+    if w.pattern not in ("uniform", "zipf", "hotspot", "trace"):
+        raise ConfigError(_where(source, "workload.sizing", overridden), f"device_lines with pattern {w.pattern}",
+                          "device_share, or device_lines with pattern uniform, zipf, hotspot or trace")
+    if w.footprint_lines:
+        raise ConfigError(_where(source, "workload.footprint_lines", overridden), str(w.footprint_lines),
+                          "0 with workload.sizing = device_lines (the traffic spans the device)")
+    if w.size_lines != 1 and w.pattern != "trace":
+        raise ConfigError(_where(source, "workload.size_lines", overridden), str(w.size_lines),
+                          "1 with workload.sizing = device_lines")
+    device = int(cfg.array.capacity_gib * 2**30 // cfg.array.line_bytes)
+    if w.pattern == "hotspot" and w.hot_lines >= device:
+        raise ConfigError(_where(source, "workload.hot_lines", overridden), str(w.hot_lines),
+                          f"fewer than the device's {device} lines (workload.sizing = device_lines)")
+
+
 def check_consistency(cfg: RunConfig, source: str, overridden: set[str]) -> None:
     """Rules that tie several fields together."""
     c = cfg.controller
@@ -283,6 +303,7 @@ def check_consistency(cfg: RunConfig, source: str, overridden: set[str]) -> None
             raise ConfigError(_where(source, "cache.enabled", overridden), "true",
                               "false with controller.hint_preset (a write reaches the PCM at its "
                               "eviction, not after its hint)")
+    _check_sizing(cfg, source, overridden)
     if cfg.footprint > a.lines:
         raise ConfigError(_where(source, "workload.footprint_lines", overridden),
                           str(cfg.workload.footprint_lines), f"at most array.lines ({a.lines})")

@@ -305,7 +305,14 @@ class WorkloadSection(Section):
                                               "instead of stopping.")
     attack_line: int = Field(0, ge=0, description="Line hammered by repeated_address.")
     burst: int = Field(1000, ge=1, description="Writes per hammered line (birthday_attack).")
-    hot_lines: int = Field(16, ge=1, description="Size of the hot set (hot_set).")
+    hot_lines: int = Field(16, ge=1, description="Size of the hot set (hot_set); with sizing device_lines, "
+                                                 "of the hotspot's hot region, in device lines.")
+    sizing: Literal["device_share", "device_lines"] = Field(
+        "device_share", description="How uniform, zipf and hotspot traffic maps onto the device: "
+                                    "device_share = footprint and hot region are shares of the device "
+                                    "(each modeled line stands for its device lines); device_lines = laid "
+                                    "out on the device's own lines, the hot region hot_lines device lines "
+                                    "and a Zipf rank one device line, whatever array.lines is.")
     requests: int = Field(100_000, ge=1, le=MAX_REQUESTS,
                           description="Requests to issue (in lines); at most 5e7 per run (use seeds "
                                       "or a sweep for more).")

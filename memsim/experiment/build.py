@@ -18,6 +18,7 @@ from memsim.tech.models import mlc_cell
 from memsim.tech.technology import uses_verify
 from memsim.workload.chunk import WRITE, Chunk
 from memsim.workload.content import DataModel
+from memsim.workload.device_traffic import folded_address
 from memsim.workload.mix import StreamMerge
 from memsim.workload.synthetic import SyntheticSource
 from memsim.workload.trace import TraceReader, read_trace
@@ -280,16 +281,26 @@ def build_source(cfg: RunConfig, rng: np.random.Generator | None = None, *,
         mix = mixed_streams(cfg)
         return RequestSource(mix, cfg.run.chunk_requests, filler, cache=cache, mix=mix)
     if w.pattern != "trace":
-        src = SyntheticSource(w, cfg.footprint, req_rng, cfg.run.chunk_requests)
+        src = SyntheticSource(w, cfg.footprint, req_rng, cfg.run.chunk_requests,
+                              address=folded_address(cfg, cfg.footprint))
         return RequestSource(src, cfg.run.chunk_requests, filler, cache=cache)
     if not w.trace:
         raise ConfigError("workload.trace", "nothing",
                           "the path of a trace file when workload.pattern is 'trace'")
+    device = w.sizing == "device_lines"
+    d = int(cfg.array.capacity_gib * 2**30 // cfg.array.line_bytes)
     reader = read_trace(w.trace, chunk_size=cfg.run.chunk_requests, skip_bad=w.skip_bad,
-                        line_bytes=cfg.array.line_bytes, footprint=cfg.footprint)
+                        line_bytes=cfg.array.line_bytes, footprint=d if device else cfg.footprint)
     if reader.has_data:          # reads the header now, outside the engine
         filler = None
-    return RequestSource(reader, cfg.run.chunk_requests, filler, reader, cache)
+    chunks = fold_chunks(reader, cfg.footprint, d) if device else reader
+    return RequestSource(chunks, cfg.run.chunk_requests, filler, reader, cache)
+
+
+def fold_chunks(chunks: Iterable[Chunk], modeled: int, device: int) -> Iterator[Chunk]:
+    """Device line ``q`` onto modeled line ``floor(q N / D)`` (runs of adjacent device lines)."""
+    for ch in chunks:
+        yield Chunk(ch.time_ns, ch.op, (ch.line * modeled // device).astype(np.int64), ch.data)
 
 
 _STREAM_KEYS = ("pattern", "requests", "read_fraction", "arrival", "interval_ns", "zipf_exponent",

@@ -111,6 +111,7 @@ from memsim.tech.endurance import EnduranceModel
 from memsim.units import GIB
 from memsim.workload.attacks import ATTACKS
 from memsim.workload.chunk import WRITE
+from memsim.workload.device_traffic import folded_address
 from memsim.workload.synthetic import SyntheticSource
 
 METHODS = ("both", "extrapolated", "run_to_failure")
@@ -646,6 +647,12 @@ def lifetime_fields(cfg: RunConfig, path: WritePath, write_bytes_per_s: float) -
             out[k] = None
         out["lifetime_note"] = "no writes reached the memory in the run: no wear to extrapolate"
         return out
+    if cfg.workload.sizing == "device_lines":
+        from memsim.experiment.fixed_lifetime import device_lines_fields
+
+        law = DeathLaw(_endurance(cfg), n_cells, cfg.lifetime.ecp_entries, profile)
+        out.update(device_lines_fields(cfg, law, rate))
+        return out
     note = _too_short(wear, out["lifetime_window_cycles"], cfg.lifetime.timing_max_noise)
     if not note and not lv.scale_free() and scale.traffic == "spread" and scale.copies > 1:
         note = (f"no lifetime from a timing run with {lv.name}: it remaps the modeled lines only, a cycle "
@@ -766,7 +773,8 @@ def write_stream(cfg: RunConfig, chunk: int = _STREAM_CHUNK) -> Iterator[np.ndar
     # No hints: they name no new line, and without arrival times they would be
     # held back for ever.
     wl = cfg.workload.model_copy(update={"arrival": "closed", "requests": 1 << 62, "hint_lead_ns": 0.0})
-    source = SyntheticSource(wl, cfg.footprint, named_stream(cfg.run.seed, "requests"), chunk)
+    source = SyntheticSource(wl, cfg.footprint, named_stream(cfg.run.seed, "requests"), chunk,
+                             address=folded_address(cfg, cfg.footprint))
     for c in source:
         yield c.line[c.op == WRITE]
 
@@ -898,6 +906,12 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
                               f"{scale.copies:.0f}x shorter than the device's; set array.lines to the device's "
                               f"line count ({scale.device_lines:.0f}) for a direct evaluation")
         method = "none"
+    if cfg.workload.sizing == "device_lines":
+        from memsim.experiment.fixed_lifetime import device_lines_fields
+
+        s.update(device_lines_fields(cfg, law, rate))
+        s["lifetime_ideal_years"] = ideal_years
+        method = "none"      # the modeled wear below is kept for its statistics only
     if method in ("both", "extrapolated"):
         if device_scale and lv.name == "none":
             # No remapping: each line wears at its own expected share (no window noise).
