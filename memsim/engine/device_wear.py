@@ -36,9 +36,34 @@ cycle, the write overhead ``1 / psi``).
 """
 from __future__ import annotations
 
+from collections.abc import Callable
 from itertools import pairwise
 
 import numpy as np
+
+
+def first_crossing(count: Callable[[float], float], target: float, start: float,
+                   rel_tol: float = 1e-10) -> float:
+    """Smallest device write count ``w`` with ``count(w) >= target`` (``count`` non-decreasing).
+
+    Doubles from ``start`` to bracket the crossing, then bisects (on the log
+    scale once the bracket is positive) to ``rel_tol``; inf if no crossing
+    below 1e40 writes.
+    """
+    lo, hi = 0.0, max(float(start), 1.0)
+    while count(hi) < target:
+        hi *= 2.0
+        if hi > 1e40:
+            return float("inf")
+    for _ in range(200):
+        mid = 0.5 * (lo + hi) if lo == 0.0 else float(np.sqrt(lo * hi))
+        if count(mid) >= target:
+            hi = mid
+        else:
+            lo = mid
+        if hi - lo <= rel_tol * hi:
+            break
+    return hi
 
 
 def start_gap_device_wear(rates: np.ndarray, device_writes: float, psi: int,
@@ -115,24 +140,10 @@ def _solve(rates: np.ndarray, death: np.ndarray, needed: int, psi: int, copies: 
         return int(np.count_nonzero(death <= wear[:, None]))
 
     n = np.asarray(rates).size
-    lo = 0.0
     # Even wear reaches the largest death wear by D * max(death); Start-Gap
     # never does worse than twice that over full rotations (bound for the
     # bracket only).
-    hi = max(float(finite.max()), 1.0) * n * copies
-    while dead(hi) < needed:
-        hi *= 2.0
-        if hi > 1e40:
-            return float("inf")
-    for _ in range(200):
-        mid = 0.5 * (lo + hi) if lo == 0.0 else float(np.sqrt(lo * hi))
-        if dead(mid) >= needed:
-            hi = mid
-        else:
-            lo = mid
-        if hi - lo <= 1e-10 * hi:
-            break
-    return hi
+    return first_crossing(dead, needed, max(float(finite.max()), 1.0) * n * copies)
 
 
 def randomized_start_gap_device_lifetime(rates: np.ndarray, death_cdf, needed: int, psi: int,
@@ -178,19 +189,9 @@ def randomized_start_gap_device_lifetime(rates: np.ndarray, death_cdf, needed: i
         wear = np.maximum(mean + sd * z, 0.0)
         return d * float(np.dot(wz, death_cdf(wear)))
 
-    lo, hi = 0.0, d
-    while expected_dead(hi) < target:
-        hi *= 2.0
-        if hi > 1e40:
-            return float("inf")
-    for _ in range(200):
-        mid = 0.5 * (lo + hi) if lo == 0.0 else float(np.sqrt(lo * hi))
-        if expected_dead(mid) >= target:
-            hi = mid
-        else:
-            lo = mid
-        if hi - lo <= 1e-10 * hi:
-            break
+    hi = first_crossing(expected_dead, target, d)
+    if not np.isfinite(hi):
+        return hi
     k = hi / g
     x = k - np.floor(k / d) * d
     if var > 0 and 0 < x < d:

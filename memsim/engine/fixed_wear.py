@@ -45,6 +45,7 @@ from collections.abc import Callable
 import numpy as np
 from scipy import stats
 
+from memsim.engine.device_wear import first_crossing
 from memsim.workload.device_traffic import DeviceTraffic
 
 DeathCdf = Callable[[np.ndarray], np.ndarray]
@@ -53,20 +54,7 @@ _MAX_HOT = 100_000
 
 
 def _bisect(expected_dead: Callable[[float], float], target: float, start: float) -> float:
-    lo, hi = 0.0, max(start, 1.0)
-    while expected_dead(hi) < target:
-        hi *= 2.0
-        if hi > 1e40:
-            return float("inf")
-    for _ in range(200):
-        mid = 0.5 * (lo + hi) if lo == 0.0 else float(np.sqrt(lo * hi))
-        if expected_dead(mid) >= target:
-            hi = mid
-        else:
-            lo = mid
-        if hi - lo <= 1e-9 * hi:
-            break
-    return hi
+    return first_crossing(expected_dead, target, start, rel_tol=1e-9)
 
 
 def target_dead(needed: int) -> float:

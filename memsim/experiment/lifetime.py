@@ -686,15 +686,7 @@ def _start_gap_at_device(cfg: RunConfig, lv: Leveler, law: DeathLaw, chunks: Ite
     over the window; lines outside the footprint get none (the device's
     Start-Gap spans every line of the device).
     """
-    shares = None
-    if cfg.workload.pattern != "trace":
-        wl = cfg.workload.model_copy(update={"arrival": "closed", "requests": 1 << 62})
-        shares = SyntheticSource(wl, cfg.footprint, named_stream(cfg.run.seed, "requests")).expected_write_shares()
-    if shares is None:
-        counts = run_wear(chunks, Leveler(cfg.footprint), max_user_writes=window)
-        shares = counts.user_line_writes / max(counts.user_writes, 1)
-    rates = np.zeros(cfg.array.lines)
-    rates[: cfg.footprint] = shares
+    rates = _device_rates(cfg, chunks, window)
     dd = device_deaths(law, named_stream(cfg.run.seed, "endurance"), rates, scale.copies, scale.device_lines,
                        cfg.lifetime.capacity_loss)
     needed = dd.needed
