@@ -196,7 +196,7 @@ def test_randomized_start_gap_gives_no_estimate_where_the_approximation_fails() 
     # so the approximation gives none.  On a device of one modeled line per
     # device line the modeled leveler is exact and is used instead.
     from memsim.engine.device_wear import randomized_start_gap_device_lifetime
-    from memsim.experiment.lifetime import DeathLaw
+    from memsim.metrics.death_law import DeathLaw
     from memsim.tech.endurance import EnduranceModel
 
     law = DeathLaw(EnduranceModel(1e4, 0.1), 512, 0, 1.0)

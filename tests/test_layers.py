@@ -11,8 +11,6 @@ from __future__ import annotations
 import ast
 from pathlib import Path
 
-import pytest
-
 PACKAGE = Path(__file__).resolve().parents[1] / "memsim"
 LAYERS = ["", "config", "tech", "workload", "policy", "engine", "metrics", "experiment", "report", "cli"]
 RANK = {name: i for i, name in enumerate(LAYERS)}
@@ -130,7 +128,5 @@ def test_no_import_cycle_besides_the_known_one() -> None:
     assert not others, [sorted(c) for c in others]
 
 
-@pytest.mark.xfail(strict=False, reason="experiment/run.py and experiment/lifetime.py still import each "
-                   "other; passes once the lifetime engine no longer needs run.py")
 def test_run_and_lifetime_do_not_import_each_other() -> None:
     assert not any(c >= {"memsim.experiment.run", "memsim.experiment.lifetime"} for c in _cycles())

@@ -12,11 +12,8 @@ from scipy import stats
 from memsim.engine.wear import WearResult, run_wear
 from memsim.errors import ConfigError
 from memsim.metrics.lifetime import (
-    LifetimeSetup,
-    estimate_lifetime,
     ideal_lifetime_writes,
     lifetime_extrapolated,
-    lifetime_summary,
     lifetime_to_failure,
     writes_to_years,
 )
@@ -181,11 +178,11 @@ def test_extrapolation_hand_case() -> None:
     # Up to half the capacity may go: ends at the 3rd death (floor(0.5*4)+1).
     life = lifetime_extrapolated(wear, death, capacity_loss=0.5)
     assert life.end_writes == pytest.approx(50.0)
-    summ = lifetime_summary(life, wear, endurance_mean=10.0, n_logical=4, line_bytes=64,
-                            write_bytes_per_s=64.0)
-    assert summ["lifetime_ideal_writes"] == 40.0
-    assert summ["lifetime_vs_ideal"] == pytest.approx(50.0 / 40.0)
-    assert summ["lifetime_years"] == pytest.approx(50.0 / 3.15576e7)
+    # Ideal: every cell of every line used up evenly (Qureshi et al., MICRO 2009).
+    assert ideal_lifetime_writes(10.0, 4) == 40.0
+    assert life.end_writes / ideal_lifetime_writes(10.0, 4) == pytest.approx(50.0 / 40.0)
+    assert writes_to_years(life.end_writes, line_bytes=64, write_bytes_per_s=64.0) == pytest.approx(
+        50.0 / 3.15576e7)
 
 
 def test_run_to_failure_hand_case() -> None:
@@ -316,29 +313,3 @@ def test_line_scale_lowers_first_failure() -> None:
     assert f8 < f1
     with pytest.raises(ConfigError):
         lifetime_extrapolated(wear, d1, capacity_loss=1.0)
-
-
-def test_estimate_lifetime_summary_fields_and_methods_agree() -> None:
-    n = 64
-    chunks = zipf_chunks(4, n, 400_000, alpha=0.8)
-    setup = LifetimeSetup(endurance=EnduranceModel(1e7, 0.2), ecp_entries=1, line_bits=128,
-                          cells=0.5, line_scale=4, endurance_scale=1e7 / 2e3,
-                          write_bytes_per_s=1e8)
-
-    def new():
-        return make_leveler("randomized_start_gap", n, np.random.default_rng(1), psi=10)
-
-    a = estimate_lifetime(lambda: chunks, new, np.random.default_rng(2), setup)
-    b = estimate_lifetime(lambda: chunks, new, np.random.default_rng(2), setup,
-                          method="run_to_failure")
-    for key in ("lifetime_years", "lifetime_first_failure_years", "lifetime_ideal_years",
-                "lifetime_vs_ideal", "leveling_write_overhead", "wear_max_over_mean",
-                "wear_cov"):
-        assert np.isfinite(a[key]) and np.isfinite(b[key]), key
-    assert a["lifetime_years"] == pytest.approx(b["lifetime_years"], rel=0.05)
-    # Ideal: 1e7 * 64 lines * 4 (scale) line writes of 64 bytes at 1e8 B/s.
-    assert a["lifetime_ideal_years"] == pytest.approx(1e7 * 64 * 4 * 64 / 1e8 / 3.15576e7)
-    # Half the cells programmed per write: cells last twice as many writes.
-    assert a["lifetime_vs_ideal"] > 0.5
-    with pytest.raises(ConfigError):
-        estimate_lifetime(lambda: chunks, new, np.random.default_rng(2), setup, method="guess")

@@ -18,17 +18,10 @@ from scipy.special import betaincinv
 
 from memsim.errors import ConfigError
 from memsim.experiment.build import build_path
-from memsim.experiment.lifetime import (
-    DeathLaw,
-    cell_cdf,
-    device_deaths,
-    leveling_cycle_writes,
-    lifetime,
-    lifetime_fields,
-    pooled_profile,
-    wear_tables,
-)
+from memsim.experiment.lifetime import lifetime
 from memsim.experiment.run import resolve
+from memsim.experiment.wear_life import leveling_cycle_writes, lifetime_fields, pooled_profile, wear_tables
+from memsim.metrics.death_law import DeathLaw, cell_cdf, device_deaths
 from memsim.policy.leveling import make_leveler
 from memsim.tech.endurance import EnduranceModel, line_death_wear
 from memsim.units import S_PER_YEAR
@@ -322,7 +315,7 @@ def test_strata_fallback_agrees_with_exact(monkeypatch: pytest.MonkeyPatch) -> N
     # copies by strata must land near the exact order statistics.  Tolerance
     # 5%: ~80 stratum deaths decide (~11% noise in the quantile), and the
     # line death law is steep.
-    import memsim.experiment.lifetime as mod
+    import memsim.metrics.death_law as mod
 
     cfg = small(lines=256, scale=4096, cell={"endurance_cov": 0.2},
                 lifetime={"window_writes": 500_000, "capacity_loss": 0.01, "ecp_entries": 1})

@@ -4,7 +4,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from memsim.experiment.lifetime import wear_tables
+from memsim.experiment.wear_life import wear_tables
 from memsim.metrics.result import RunResult
 from memsim.report.wear_plot import end_of_life_level, end_of_life_share, save_wear_figure, wear_figure
 

@@ -20,8 +20,8 @@ from memsim.errors import ConfigError
 from memsim.experiment.build import build_path, build_source, source_fields
 from memsim.experiment.checks import check_parts
 from memsim.experiment.front import cache_energy_pj, front_fields, host_counts, stream_fields
-from memsim.experiment.lifetime import lifetime_fields
 from memsim.experiment.progress import track
+from memsim.experiment.wear_life import lifetime_fields
 from memsim.metrics.energy import periphery_energy
 from memsim.metrics.result import RunResult
 from memsim.policy.refresh import check_refresh_load, plan_refresh

@@ -38,14 +38,13 @@ memories", ISCA 2010 (line death at the (k+1)-th cell failure).
 from __future__ import annotations
 
 from collections.abc import Callable, Iterable
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 
-from memsim.engine.wear import WearCounter, WearResult, effective_profile, run_wear
+from memsim.engine.wear import WearCounter, WearResult
 from memsim.errors import ConfigError
 from memsim.policy.leveling.base import Leveler
-from memsim.tech.endurance import EnduranceModel, line_death_wear
 from memsim.units import S_PER_YEAR
 
 
@@ -214,100 +213,3 @@ def lifetime_to_failure(stream: Callable[[], Iterable[np.ndarray]], leveler: Lev
     first = float(all_t[0]) * endurance_scale if all_t.size else np.inf
     return Lifetime("run_to_failure", end, first, int(min(n_dead, m)) if reached else n_dead,
                     P * S, reached, float(endurance_scale))
-
-
-def lifetime_summary(life: Lifetime, wear: WearResult, *, endurance_mean: float,
-                     n_logical: int, line_bytes: int, write_bytes_per_s: float,
-                     line_scale: int = 1) -> dict:
-    """Flat summary with units in the names.
-
-    ``lifetime_vs_ideal`` is end-of-life writes over ideal writes;
-    ``leveling_write_overhead``, ``wear_max_over_mean`` and ``wear_cov`` come
-    from ``wear`` (over physical lines, write equivalents).
-    """
-    ideal = ideal_lifetime_writes(endurance_mean, n_logical)
-
-    def years(w: float) -> float:
-        return writes_to_years(w, line_bytes=line_bytes, write_bytes_per_s=write_bytes_per_s,
-                               line_scale=line_scale)
-
-    return {
-        "lifetime_method": life.method,
-        "lifetime_reached_end": life.reached_end,
-        "lifetime_writes": life.end_writes,
-        "lifetime_first_failure_writes": life.first_failure_writes,
-        "lifetime_ideal_writes": ideal,
-        "lifetime_years": years(life.end_writes),
-        "lifetime_first_failure_years": years(life.first_failure_writes),
-        "lifetime_ideal_years": years(ideal),
-        "lifetime_vs_ideal": life.end_writes / ideal,
-        "dead_lines_at_end": life.dead_lines,
-        "device_lines": life.device_lines,
-        "leveling_write_overhead": wear.leveling_write_overhead,
-        "wear_max_over_mean": wear.wear_max_over_mean,
-        "wear_cov": wear.wear_cov,
-    }
-
-
-@dataclass(frozen=True)
-class LifetimeSetup:
-    """Everything a lifetime estimate needs besides the stream and scheme.
-
-    Attributes mirror the proposed config keys: endurance distribution and
-    ECP entries (``ecp_entries`` = k), cells per line and the cell model,
-    device scale and write rate, end-of-life rule, and for a run to failure
-    the endurance scale.
-    """
-
-    endurance: EnduranceModel = field(default_factory=EnduranceModel)
-    ecp_entries: int = 6
-    line_bits: int = 512
-    line_bytes: int = 64
-    cells: float | np.ndarray | None = None
-    move_weight: float = 1.0
-    line_scale: int = 1
-    capacity_loss: float = 0.0
-    write_bytes_per_s: float = 1e9
-    endurance_scale: float = 1e4
-
-
-def estimate_lifetime(stream: Callable[[], Iterable[np.ndarray]],
-                      new_leveler: Callable[[], Leveler], rng: np.random.Generator,
-                      setup: LifetimeSetup, *, method: str = "extrapolated",
-                      window_writes: int | None = None) -> dict:
-    """Wear over the stream, sample endurance, estimate lifetime; flat summary.
-
-    Parameters
-    ----------
-    stream:
-        Returns the write stream (chunks of logical lines); replayed as needed.
-    new_leveler:
-        Builds a fresh leveler (same seed each call).
-    rng:
-        Generator for the cell endurances.
-    setup:
-        Endurance, cell and device parameters.
-    method:
-        ``"extrapolated"`` (a) or ``"run_to_failure"`` (b).
-    window_writes:
-        For (a), user writes of the measuring window (default: one pass).
-    """
-    if method not in ("extrapolated", "run_to_failure"):
-        raise ConfigError("lifetime.method", repr(method), "extrapolated, run_to_failure")
-    lv = new_leveler()
-    wear = run_wear(stream(), lv, cells=setup.cells, line_bits=setup.line_bits,
-                    move_weight=setup.move_weight, max_user_writes=window_writes)
-    profile = effective_profile(setup.cells, setup.line_bits, lv)
-    death = line_death_wear(rng, setup.endurance, lv.n_physical, setup.line_bits,
-                            setup.ecp_entries, profile=profile, copies=setup.line_scale)
-    if method == "extrapolated":
-        life = lifetime_extrapolated(wear, death, capacity_loss=setup.capacity_loss)
-    else:
-        life = lifetime_to_failure(stream, new_leveler(), death,
-                                   endurance_scale=setup.endurance_scale,
-                                   capacity_loss=setup.capacity_loss,
-                                   move_weight=setup.move_weight)
-    return lifetime_summary(life, wear, endurance_mean=setup.endurance.mean,
-                            n_logical=lv.n_logical, line_bytes=setup.line_bytes,
-                            write_bytes_per_s=setup.write_bytes_per_s,
-                            line_scale=setup.line_scale)
