@@ -125,3 +125,13 @@ def test_closed_loop_rewrites_reset_drift_at_their_real_times():
                                "workload.arrival": "closed", "workload.outstanding": 2})
     assert tot.simulated_ns > 2 * eng.plan.threshold_ns
     assert eng.agent.refreshes == 0
+
+
+def test_drift_refresh_of_cells_that_never_need_it_runs_without_refreshes():
+    # SLC cells with the default preset need no refresh within the drift law's
+    # window: a drift policy then has nothing to do (it used to draw start ages
+    # over an infinite interval and fail).
+    from memsim import simulate
+
+    s = simulate(None, refresh__policy="drift", workload__requests=3000).summary
+    assert s["refreshes"] == 0 and s["refresh_age_needed_s"] == float("inf")

@@ -92,7 +92,9 @@ class RefreshPlan:
 
     @property
     def active(self) -> bool:
-        return self.policy in ("periodic", "drift")
+        """A scanning policy with a refresh age that comes (a cell that never needs
+        refresh within the drift law's window, e.g. SLC, leaves nothing to scan)."""
+        return self.policy in ("periodic", "drift") and math.isfinite(self.threshold_ns)
 
     def _interp(self, grid: np.ndarray, device_age_s: np.ndarray) -> np.ndarray:
         x = np.log10(np.maximum(np.asarray(device_age_s, dtype=float), 1e-12))
