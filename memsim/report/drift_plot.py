@@ -41,14 +41,17 @@ def rber_figure(table: pd.DataFrame, ecc_limit: float, refresh_age_s: float | No
         y = table[col].to_numpy(dtype=np.float64)
         return np.where(y > 0, y, np.nan)
 
+    # Rates far below the ECC limit do not matter for refresh; showing hundreds
+    # of decades of Gaussian tail would squash the interesting part.
+    floor = max(ecc_limit * 1e-12, 1e-300)
     levels = sorted((int(m.group(1)), c) for c in table.columns if (m := _LEVEL_COL.match(c)))
     silent = []
     for lv, col in levels:
         y = positive(col)
-        if np.any(np.isfinite(y)):
+        if np.nanmax(y, initial=0.0) >= floor:
             ax.plot(age, y, lw=1.2, alpha=0.8, label=f"level {lv}")
         else:
-            silent.append(str(lv))
+            silent.append(str(lv))        # no error rate the axis can show: named, not drawn
     ax.plot(age, positive("rber_line"), color="black", lw=2.2, label="line (all levels)")
     ax.axhline(ecc_limit, color="tab:red", ls="--", lw=1.2, label=f"ECC limit ({ecc_limit:.2e})")
     if refresh_age_s is not None and math.isfinite(refresh_age_s):
@@ -60,9 +63,7 @@ def rber_figure(table: pd.DataFrame, ecc_limit: float, refresh_age_s: float | No
         title = "Raw bit error rate vs line age (no refresh due in window)"
     ax.set_xscale("log")
     ax.set_yscale("log")
-    # Rates far below the ECC limit do not matter for refresh; showing hundreds
-    # of decades of Gaussian tail would squash the interesting part.
-    ax.set_ylim(max(ecc_limit * 1e-12, 1e-300), 1.0)
+    ax.set_ylim(floor, 1.0)
     # Explicit x range: with no positive error rate at all, no line carries
     # x data and the log axis would have nothing to scale to.
     ax.set_xlim(float(np.nanmin(age)), float(np.nanmax(age)))
@@ -70,7 +71,7 @@ def rber_figure(table: pd.DataFrame, ecc_limit: float, refresh_age_s: float | No
         ax.text(
             0.01,
             0.98,
-            f"no errors: level {', '.join(silent)}",
+            f"below {floor:.0e} at every age: level {', '.join(silent)}",
             transform=ax.transAxes,
             fontsize="small",
             va="top",
