@@ -357,7 +357,7 @@ def cdf_figure(table: pd.DataFrame, name: str, hue_keys: Sequence[str], others: 
     fixed = {k: middle(table[k]) for k in others}
     tab = select(table, fixed)
     panels = list(dict.fromkeys(tab["op"])) if "op" in tab.columns else [None]
-    fig = Figure(figsize=(5.2 * len(panels), 4.0))
+    fig = Figure(figsize=(5.2 * len(panels) + (1.8 if hue else 0.0), 4.0))
     FigureCanvasAgg(fig)
     log_x = bool((tab[hi] > 0).all() and tab[hi].max() > 10 * tab[hi].min())
     stem, unit = split_unit(name.removesuffix("_histogram") + "_" + value)
@@ -377,7 +377,7 @@ def cdf_figure(table: pd.DataFrame, name: str, hue_keys: Sequence[str], others: 
             ax.step(xs, ys, where="post", label=_combo_label(hue, values))
         if log_x:
             ax.set_xscale("log")
-            ax.xaxis.set_major_locator(LogLocator(subs=(1.0, 2.0, 5.0)))
+            ax.xaxis.set_major_locator(LogLocator(subs=(1.0, 2.0, 5.0), numticks=12))
             ax.xaxis.set_major_formatter(FuncFormatter(lambda v, _: f"{v:g}"))
             ax.xaxis.set_minor_formatter(NullFormatter())
         ax.set_xlabel(f"{stem.replace('_', ' ')} ({unit})" if unit else stem.replace("_", " "))
@@ -385,8 +385,8 @@ def cdf_figure(table: pd.DataFrame, name: str, hue_keys: Sequence[str], others: 
         ax.set_ylim(0, 1.02)
         ax.grid(True, alpha=0.3)
         ax.set_title((f"{panel}s " if panel else "") + f"CDF{_fixed_note(fixed)}", fontsize="medium")
-        if hue:
-            ax.legend(fontsize="small")
+        if hue and n == len(panels) - 1:
+            _outside_legend(ax)
     fig.tight_layout()
     return fig
 
