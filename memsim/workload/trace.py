@@ -69,7 +69,7 @@ A malformed row raises :class:`memsim.errors.TraceError` naming
 ``file:line`` (text; 1-based line of the decompressed text) or
 ``file:row N`` (Parquet), what was found and what is allowed.  With
 ``skip_bad=True`` such rows are skipped and counted instead
-(:attr:`TraceReader.bad_lines`).  A missing or unreadable header, a corrupt
+(:attr:`memsim.workload.trace_reader.TraceReader.bad_lines`).  A missing or unreadable header, a corrupt
 gzip stream or Parquet file always raise.
 
 Reading is streamed: memory stays bounded by the parse block (8 MiB of text

@@ -16,7 +16,7 @@ _M2 = np.uint64(0x94D049BB133111EB)
 
 
 def check_int(key: str, value: object, lo: int, hi: int | None = None) -> int:
-    """Validate an integer leveler parameter; raise :class:`ConfigError`."""
+    """Validate an integer leveler parameter; raise :class:`memsim.errors.ConfigError`."""
     return require_int(f"leveling.{key}", value, lo, hi)
 
 
