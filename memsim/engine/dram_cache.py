@@ -145,6 +145,10 @@ class DramCache:
         self.counts = np.zeros(6, np.int64)
         self.hits = LatencyStream()                  # requests the cache completed
         self.last_hit_finish_ns = 0.0
+        # Per host request (op, arrival, hit), kept only when asked: per-stream
+        # keys of a mix attribute each request to its stream.
+        self.keep_host = False
+        self.host_log: list[tuple[np.ndarray, np.ndarray, np.ndarray]] = []
 
     @classmethod
     def from_config(cls, cfg) -> DramCache | None:
@@ -169,6 +173,8 @@ class DramCache:
         hit = np.empty(n, np.bool_)
         m = _filter(chunk.op, chunk.line, chunk.time_ns, data, has_data, self.tags, self.dirty,
                     self.stamp, store, self.lru, self.counts, out_op, out_line, out_time, out_data, hit)
+        if self.keep_host:
+            self.host_log.append((chunk.op.copy(), chunk.time_ns.copy(), hit.copy()))
         if hit.any():
             t = chunk.time_ns[hit]
             done = t + self.hit_ns
@@ -181,6 +187,17 @@ class DramCache:
             out = self.filter(ch)
             if len(out):
                 yield out
+
+    def host_requests(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """(op, arrival_ns, hit) of every host request so far, in order (``keep_host`` only).
+
+        ``hit`` is true for requests the cache completed (read hits, every
+        write); the others are the reads that became PCM line fills, in the
+        same order as the PCM reads.
+        """
+        if not self.host_log:
+            return np.empty(0, np.int8), np.empty(0), np.empty(0, np.bool_)
+        return tuple(np.concatenate(parts) for parts in zip(*self.host_log))
 
     # ------------------------------------------------------------ results
     @property

@@ -10,6 +10,11 @@ Written forms of a setting (command line ``--vary``, or strings in Python)::
     erase_ahead: write.scheme=block_erase,controller.write_cancel=true
                                                 the same, labelled
     as_configured:                              a label alone: the config as is
+    streams.web.interval_ns=50,100              one stream's field, the stream named
+                                                by its name ...
+    streams[1].interval_ns=50,100               ... or by its place in [[streams]]
+                                                (from 0); an unknown stream or field
+                                                is an error before anything runs
 
 Values are TOML literals (``true``, ``38400``, ``"text"``) or bare text;
 commas inside quotes or brackets do not split.  A workload is either a run
@@ -32,7 +37,8 @@ from memsim.config.load import parse_value, read_toml
 from memsim.errors import ConfigError
 from memsim.experiment.batch import RESERVED, check_key, flatten
 
-_ASSIGN = re.compile(r"^\s*([A-Za-z_][A-Za-z0-9_]*(?:\.[A-Za-z_][A-Za-z0-9_]*)+)\s*=(.*)$", re.DOTALL)
+# section.key, or one stream's key: streams[I].key or streams.NAME.key (names may start with a digit).
+_ASSIGN = re.compile(r"^\s*([A-Za-z_][A-Za-z0-9_]*(?:\[\d+\])?(?:\.[A-Za-z0-9_]+)+)\s*=(.*)$", re.DOTALL)
 
 
 @dataclass(frozen=True)
