@@ -519,6 +519,8 @@ def load_config(
     for key, value in items:
         if stream_key(key) is not None:
             written[_set_stream(data, key, value)] = key
+        elif key.startswith(("streams.", "streams[")):
+            check_stream_field(key, f"--set {key}")
         else:
             set_dotted(data, key, value)
     try:

@@ -13,7 +13,7 @@ from typing import Any
 import numpy as np
 
 from memsim.config import RunConfig
-from memsim.engine.dram_cache import DramCache, merged_latency
+from memsim.engine.dram_cache import HIT, PASSED, DramCache, merged_latency
 from memsim.engine.stream import LatencyStream
 from memsim.engine.timing import TimingTotals
 from memsim.workload.chunk import READ, WRITE
@@ -66,7 +66,8 @@ def front_fields(cfg: RunConfig, tot: TimingTotals, cache: DramCache | None) -> 
 def stream_fields(cfg: RunConfig, tot: TimingTotals, tags: np.ndarray,
                   cache: DramCache | None = None) -> dict[str, Any]:
     """Per-stream keys of a mix: ``stream_<name>_{requests,reads,writes,throughput_gbps}`` and
-    ``stream_<name>_{read,write}_latency_{mean,p50,p95,p99}_ns`` (same histogram as the totals).
+    ``stream_<name>_{read,write}_latency_{mean,p50,p95,p99}_ns`` (same histogram as the totals),
+    ``stream_<name>_mean_in_system`` (time-average requests of the stream in the system).
 
     With a DRAM cache these describe the host's requests of the stream, as
     the ``overall_*`` keys do for all of them (hits at the cache's latency,
@@ -78,12 +79,14 @@ def stream_fields(cfg: RunConfig, tot: TimingTotals, tags: np.ndarray,
         op_all, arrival, finish, sim = tot.op, tot.arrival_ns, tot.finish_ns, tot.simulated_ns
         hit = None
     else:
-        op_all, arrival, hit = cache.host_requests()
+        op_all, arrival, fate = cache.host_requests()
+        hit = fate == HIT
+        passed = fate == PASSED
         finish = arrival + cfg.cache.hit_ns
         fills = tot.op == READ
-        if int(fills.sum()) != int((~hit).sum()) or len(hit) != len(tags):
+        if int(fills.sum()) != int(passed.sum()) or len(fate) != len(tags):
             raise RuntimeError("host requests and PCM line fills do not pair up")
-        finish[~hit] = tot.finish_ns[fills]
+        finish[passed] = tot.finish_ns[fills]
         sim = max(tot.simulated_ns, cache.last_hit_finish_ns)
     s: dict[str, Any] = {}
     for j, st in enumerate(cfg.streams):
@@ -100,6 +103,7 @@ def stream_fields(cfg: RunConfig, tot: TimingTotals, tags: np.ndarray,
         s[p + "throughput_gbps"] = n * cfg.array.line_bytes / sim if sim > 0 else 0.0
         s.update(stream.stats(READ, p + "read_latency"))
         s.update(stream.stats(WRITE, p + "write_latency"))
+        s[p + "mean_in_system"] = stream.mean_in_system(sim)
         if hit is not None:
             h = hit[mine]
             s[p + "cache_hit_rate"] = float(h.mean()) if n else None
