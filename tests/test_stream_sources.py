@@ -57,7 +57,8 @@ def test_trace_stream_offset_scale_and_start(tmp_path):
     cfg = load_config({"streams": [
         {"name": "t", "pattern": "trace", "trace": str(p), "offset_lines": 4096, "time_scale": 0.25,
          "start_ns": 5000.0, "footprint_lines": 2048},
-        {"name": "g", "requests": 800, "footprint_lines": 1024}]})
+        {"name": "g", "requests": 800, "footprint_lines": 1024, "start_ns": 2000.0, "arrival": "fixed",
+         "interval_ns": 10.0}]})
     src = build_source(cfg, content=False)
     ch = Chunk.concat(list(src))
     tags = src.mix.stream_of_requests()
@@ -65,6 +66,7 @@ def test_trace_stream_offset_scale_and_start(tmp_path):
     assert ch.line[tags == 0].tolist() == (line + 4096).tolist()
     assert (ch.op[tags == 0] == WRITE).tolist() == (ops == "W").tolist()
     assert ch.line[tags == 1].max() < 1024
+    np.testing.assert_allclose(ch.time_ns[tags == 1], 2000.0 + 10.0 * np.arange(1, 801))
     assert np.all(np.diff(ch.time_ns) >= 0)
 
 
@@ -298,3 +300,17 @@ def test_compare_and_sweep_cli_with_stream_keys(tmp_path):
     sweep.write_text(sweep.read_text().replace("streams[1]", "streams[7]"))
     res = memsim_cli("sweep", str(sweep), "--out", str(tmp_path / "s2"))
     assert res.code == 2 and "streams[7]" in res.err and "stream index 7" in res.err
+
+
+def test_compare_workload_files_bring_their_own_streams(tmp_path):
+    (tmp_path / "sub").mkdir()
+    _trace(tmp_path / "sub" / "t.csv", n=800)
+    base = tmp_path / "base.toml"
+    base.write_text('[run]\nname = "b"\n[workload]\nrequests = 500\n')
+    wl = tmp_path / "sub" / "pair.toml"
+    wl.write_text('[[streams]]\nname = "replay"\npattern = "trace"\ntrace = "t.csv"\n'
+                  '[[streams]]\nname = "gen"\nrequests = 300\noffset_lines = 4096\n')
+    table = compare(base, ["controller.write_cancel=false,true"], workloads=[str(wl)], workers=1,
+                    metrics=["stream_replay_requests", "stream_gen_requests"])
+    assert table["stream_replay_requests"].tolist() == [800, 800]
+    assert table["stream_gen_requests"].tolist() == [300, 300]
