@@ -314,3 +314,18 @@ def test_compare_workload_files_bring_their_own_streams(tmp_path):
                     metrics=["stream_replay_requests", "stream_gen_requests"])
     assert table["stream_replay_requests"].tolist() == [800, 800]
     assert table["stream_gen_requests"].tolist() == [300, 300]
+
+
+def test_trace_made_from_a_mix_replays_to_the_same_run(tmp_path):
+    import memsim
+    mix = {"array": {"lines": 8192}, "streams": [
+        {"name": "a", "requests": 2000, "pattern": "zipf", "footprint_lines": 4096},
+        {"name": "b", "requests": 1000, "interval_ns": 300.0, "offset_lines": 4096, "read_fraction": 0.1}]}
+    made = memsim.make_trace(mix, tmp_path / "mix.csv")
+    assert made["requests"] == 3000 and made["streams"] == 2
+    a = simulate(mix).summary
+    b = simulate({"array": {"lines": 8192}, "workload": {"pattern": "trace", "trace": str(tmp_path / "mix.csv")}}
+                 ).summary
+    shared = [k for k in b if k in a and k != "wall_s"]
+    assert len(shared) > 50
+    assert all(a[k] == b[k] or (a[k] != a[k] and b[k] != b[k]) for k in shared)
