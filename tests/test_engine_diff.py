@@ -7,7 +7,11 @@ wear counters and the whole summary.  (No 1e-9 tolerance is needed anywhere;
 if one is ever needed it must be named here with the sum whose order
 differs.)
 """
+import functools
 import math
+import os
+import tempfile
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -268,11 +272,42 @@ stream_configs = st.fixed_dictionaries({
         "offset_lines": st.sampled_from([0, 1024, 2048]),
         "footprint_lines": st.sampled_from([64, 1024]),
     }), min_size=1, max_size=3),
+    "mode": st.sampled_from(["open", "cache", "closed"]),
+    "trace": st.none() | st.tuples(st.booleans(), st.sampled_from([0.5, 1.0, 3.0]), st.sampled_from([0.0, 5000.0])),
 })
+
+
+@functools.cache
+def _stream_trace(with_data: bool) -> str:
+    """A small trace for trace streams (lines below 1024), written once per test process."""
+    rng = np.random.default_rng(11 + with_data)
+    n = 700
+    t = np.cumsum(rng.exponential(60.0, n))
+    path = Path(tempfile.gettempdir()) / f"memsim_diff_stream_{os.getpid()}_{int(with_data)}.csv"
+    rows = ["time_ns,op,line" + (",data" if with_data else "")]
+    for i in range(n):
+        w = rng.random() < 0.4
+        row = f"{t[i]:.2f},{'W' if w else 'R'},{rng.integers(0, 1024)}"
+        if with_data:
+            row += "," + (rng.bytes(64).hex() if w else "")
+        rows.append(row)
+    path.write_text("\n".join(rows) + "\n")
+    return str(path)
 
 
 def _named(ov):
     ov["streams"] = [{**s, "name": f"s{i}"} for i, s in enumerate(ov["streams"])]
+    mode = ov.pop("mode")
+    if mode == "cache":
+        ov.update({"cache.enabled": True, "cache.capacity_lines": 256, "cache.ways": 4})
+    elif mode == "closed":
+        ov.update({"workload.arrival": "closed", "workload.outstanding": 6})
+    trace = ov.pop("trace")
+    if trace is not None:
+        with_data, scale, start = trace
+        ov["streams"].append({"name": "replay", "pattern": "trace", "trace": _stream_trace(with_data),
+                              "time_scale": scale, "start_ns": start, "offset_lines": 3072,
+                              "footprint_lines": 1024})
     return ov
 
 
@@ -280,3 +315,27 @@ def _named(ov):
 @given(stream_configs.map(_named))
 def test_fast_engine_matches_reference_with_mixed_streams(ov):
     assert_engines_agree(ov)
+
+
+@pytest.mark.parametrize("mode", ["cache", "closed"])
+@pytest.mark.parametrize("with_data", [False, True])
+def test_mixed_stream_summaries_agree(mode, with_data):
+    # Per-stream keys come after the engines (and the cache before them): the
+    # whole summary, per-stream keys included, agrees key for key.
+    ov = _named({"run.seed": 5, "array.lines": 4096, "array.banks": 2, "mode": mode,
+                 "trace": (with_data, 0.5, 1000.0),
+                 "streams": [{"pattern": "zipf", "requests": 1200, "interval_ns": 100.0, "footprint_lines": 1024},
+                             {"pattern": "sequential", "requests": 600, "read_fraction": 0.0,
+                              "interval_ns": 200.0, "offset_lines": 1024, "footprint_lines": 1024}]})
+    s = assert_summaries_agree(ov)
+    assert s["stream_replay_requests"] == 700 and s["stream_s0_requests"] == 1200
+    if mode == "cache":
+        assert 0 < s["stream_s0_cache_hit_rate"] < 1
+
+
+def test_a_cache_that_absorbs_every_request_leaves_the_pcm_idle():
+    # Writes only, over fewer lines than the cache holds: nothing reaches the PCM.
+    s = assert_summaries_agree({"workload.requests": 300, "workload.read_fraction": 0.0,
+                                "workload.footprint_lines": 64, "cache.enabled": True,
+                                "cache.capacity_lines": 256, "cache.ways": 4})
+    assert s["requests"] == 0 and s["overall_requests"] == 300 and s["cache_writebacks"] == 0

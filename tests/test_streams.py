@@ -102,8 +102,17 @@ def test_streams_from_a_toml_file(tmp_path):
 @pytest.mark.parametrize("extra, key", [
     ({"streams": [{"name": "a"}, {"name": "a"}]}, "streams[1].name"),
     ({"streams": [{"name": "a", "offset_lines": 65530, "footprint_lines": 100}]}, "streams[0].offset_lines"),
-    ({"streams": [{"name": "a"}], "cache": {"enabled": True}}, "cache.enabled"),
-    ({"streams": [{"name": "a"}], "workload": {"arrival": "closed"}}, "workload.arrival"),
+    ({"streams": [{"name": "a"}], "cache": {"enabled": True}, "workload": {"arrival": "closed"}},
+     "cache.enabled"),
+    ({"streams": [{"name": "a", "pattern": "trace"}]}, "streams[0].trace"),
+    ({"streams": [{"name": "a", "pattern": "trace", "trace": "t.csv", "requests": 5}]}, "streams[0].requests"),
+    ({"streams": [{"name": "a", "pattern": "trace", "trace": "t.csv", "interval_ns": 5.0}]},
+     "streams[0].interval_ns"),
+    ({"streams": [{"name": "a", "time_scale": 2.0}]}, "streams[0].time_scale"),
+    ({"streams": [{"name": "a", "trace": "t.csv"}]}, "streams[0].trace"),
+    ({"streams": [{"name": "a", "interval_ns": -1.0}]}, "streams[0].interval_ns"),
+    ({"streams": [{"name": "a"}], "controller": {"hint_preset": True}}, "controller.hint_preset"),
+    ({"streams": [{"name": "a"}], "workload": {"pattern": "trace", "trace": "t.csv"}}, "workload.pattern"),
     ({"streams": {"name": "a"}}, "streams"),
 ])
 def test_bad_streams(extra, key):

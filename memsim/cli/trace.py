@@ -34,7 +34,11 @@ def make_cmd(spec: str, out: str, sets: tuple[str, ...], with_data: bool) -> Non
     click.echo(f"wrote {n:,} requests to {out}: {counts[0]:,} reads, {counts[1]:,} writes, "
                + ("write content stored" if with_data else "no write content"))
     if made["closed_loop"]:
-        click.echo('arrival "closed": every time_ns is 0; replay with workload.arrival = "closed"')
+        if made["streams"]:
+            click.echo('arrival "closed": time_ns is the streams\' merge order only; replay with '
+                       'workload.arrival = "closed"')
+        else:
+            click.echo('arrival "closed": every time_ns is 0; replay with workload.arrival = "closed"')
 
 
 def _pct(x: float) -> str:

@@ -6,7 +6,9 @@ file, the dotted key, what was found and what is allowed.
 from __future__ import annotations
 
 import copy
+import re
 import tomllib
+import typing
 from collections.abc import Mapping
 from pathlib import Path
 from typing import Any
@@ -18,6 +20,7 @@ from memsim.config.schema import (
     MAX_MODELED_BYTES,
     MAX_REQUESTS,
     RunConfig,
+    StreamSection,
     load_preset,
     preset_names,
 )
@@ -36,9 +39,62 @@ def parse_assignment(item: str, source: str = "--set") -> tuple[str, Any]:
     """Split ``section.key=value`` into its dotted key and parsed value."""
     key, sep, value = item.partition("=")
     key = key.strip()
-    if not sep or "." not in key or not key.replace(".", "").replace("_", "").isalnum():
+    bare = key.replace(".", "").replace("_", "").replace("[", "").replace("]", "")
+    if not sep or "." not in key or not bare.isalnum():
         raise ConfigError(source, repr(item), "section.key=value, e.g. write.scheme=flip_n_write")
     return key, parse_value(value.strip())
+
+
+_STREAM_KEY = re.compile(r"^streams(?:\[(\d+)\]|\.([A-Za-z0-9_]+))\.([A-Za-z_][A-Za-z0-9_]*)$")
+
+
+def stream_key(key: str) -> tuple[int | str, str] | None:
+    """``streams[I].FIELD`` -> ``(I, FIELD)``; ``streams.NAME.FIELD`` -> ``(NAME, FIELD)``; else None.
+
+    These are the written forms of one stream's setting in overrides
+    (``--set``, ``--vary``, sweep keys): by position (0-based, as error
+    messages name a stream) or by the stream's name.
+    """
+    m = _STREAM_KEY.match(key.strip())
+    if m is None:
+        return None
+    index, name, field = m.groups()
+    return (int(index) if index is not None else name), field
+
+
+def check_stream_field(key: str, where: str) -> None:
+    """Raise ConfigError unless ``key`` is a stream key whose field a setting may change."""
+    parsed = stream_key(key)
+    fields = [f for f in StreamSection.model_fields if f != "name"]
+    if parsed is None:
+        raise ConfigError(where, f"unknown key '{key}'", "streams[I].FIELD (I from 0) or streams.NAME.FIELD")
+    if parsed[1] not in fields:
+        raise ConfigError(where, f"unknown stream field '{parsed[1]}'", "one of " + ", ".join(fields))
+
+
+def _set_stream(data: dict, key: str, value: Any) -> str:
+    """Apply one stream override to ``data``; return its key as ``streams[I].FIELD``."""
+    selector, field = stream_key(key)
+    where = f"--set {key}"
+    streams = data.get("streams")
+    if not isinstance(streams, list) or not all(isinstance(s, dict) for s in streams) or not streams:
+        raise ConfigError(where, "a config without [[streams]]", "a key of an existing stream")
+    names = [str(s.get("name")) for s in streams]
+    if isinstance(selector, int):
+        if selector >= len(streams):
+            raise ConfigError(where, f"stream index {selector}",
+                              f"streams[0] to streams[{len(streams) - 1}] (or streams.NAME with NAME one "
+                              f"of {', '.join(names)})")
+        i = selector
+    else:
+        if selector not in names:
+            raise ConfigError(where, f"no stream named '{selector}'",
+                              f"streams.NAME with NAME one of {', '.join(names)} (or streams[I], I from 0 "
+                              f"to {len(streams) - 1})")
+        i = names.index(selector)
+    check_stream_field(key, where)
+    streams[i][field] = value
+    return f"streams[{i}].{field}"
 
 
 def set_dotted(data: dict, key: str, value: Any) -> None:
@@ -63,13 +119,31 @@ def _model_at(loc: tuple) -> type[BaseModel] | None:
     """The pydantic model class that owns the field at ``loc[:-1]``."""
     model: type[BaseModel] = RunConfig
     for part in loc[:-1]:
+        if isinstance(part, int):        # the item of a list of tables: same model
+            continue
         field = model.model_fields.get(str(part))
+        if field is not None and _item_model(field.annotation) is not None:
+            model = _item_model(field.annotation)
+            continue
         if field is None or not isinstance(field.annotation, type) or not issubclass(
             field.annotation, BaseModel
         ):
             return None
         model = field.annotation
     return model
+
+
+def _item_model(ann: Any) -> type[BaseModel] | None:
+    """The table type of a ``list[Model]`` annotation, else None."""
+    args = typing.get_args(ann)
+    if typing.get_origin(ann) is list and args and isinstance(args[0], type) and issubclass(args[0], BaseModel):
+        return args[0]
+    return None
+
+
+def _key_of_in(model: type[BaseModel], loc: tuple) -> str:
+    """The field name at the head of ``loc`` inside one table of a list (no deeper nesting there)."""
+    return str(loc[0]) if loc and str(loc[0]) in model.model_fields else ""
 
 
 def _key_of(loc: tuple) -> str:
@@ -91,6 +165,10 @@ def _key_of(loc: tuple) -> str:
             rest = loc[i + 1:]
             if rest and isinstance(rest[0], int):
                 parts[-1] += f"[{rest[0]}]"
+                model = _item_model(ann)
+                if model is not None:         # a list of tables: go on into the item
+                    loc = loc[:i + 1] + loc[i + 2:]
+                    return ".".join(parts + [_key_of_in(model, loc[i + 1:])]).rstrip(".")
             break
     if not parts:
         return ".".join(str(p) for p in loc) or "(top level)"
@@ -146,7 +224,8 @@ def _allowed(err: dict, key: str = "") -> str:
 def _where(source: str, key: str, overridden: set[str]) -> str:
     """Name the override when the bad key came from ``--set``, else the file."""
     base = key.split("[", 1)[0]
-    if any(o == base or o.startswith(base + ".") or base.startswith(o + ".") for o in overridden):
+    if key in overridden or any(o == base or o.startswith(base + ".") or base.startswith(o + ".")
+                                for o in overridden):
         return f"--set {key}"
     return f"{source}: {key}"
 
@@ -215,6 +294,10 @@ def validate(data: dict, source: str = "<config>", overridden: set[str] | None =
     return cfg
 
 
+# Stream fields of synthetic streams only (a trace stream takes them from its trace).
+_SYNTHETIC_ONLY = ("requests", "read_fraction", "arrival", "interval_ns", "zipf_exponent", "hot_fraction",
+                   "hot_share", "stride_lines")
+
 # Per-level cell fields: one number, or exactly one value per level.
 PER_LEVEL = ("program_sigma_decades", "pv_mean_iterations", "pulse_ns", "pulse_pj", "drift_nu")
 
@@ -271,18 +354,35 @@ def check_consistency(cfg: RunConfig, source: str, overridden: set[str]) -> None
             raise ConfigError(_where(source, f"{key}.name", overridden), repr(st.name),
                               "a name no other stream has")
         names.add(st.name)
+        if st.pattern == "trace":
+            if not st.trace:
+                raise ConfigError(_where(source, f"{key}.trace", overridden), "nothing",
+                                  "the path of a trace file when the stream's pattern is 'trace'")
+            # The trace decides these; a value given for them would do nothing.
+            for field in _SYNTHETIC_ONLY:
+                if getattr(st, field) == type(st).model_fields[field].default:
+                    continue
+                raise ConfigError(_where(source, f"{key}.{field}", overridden), repr(getattr(st, field)),
+                                  "no value with pattern 'trace' (the trace gives each request's "
+                                  "time, operation and line; time_scale and start_ns shape its timing)")
+        else:
+            for field, bad in (("trace", bool(st.trace)), ("time_scale", st.time_scale != 1.0)):
+                if bad:
+                    raise ConfigError(_where(source, f"{key}.{field}", overridden), repr(getattr(st, field)),
+                                      "only with the stream's pattern 'trace'")
         if st.offset_lines + max(st.footprint_lines, 1) > cfg.footprint:
             raise ConfigError(_where(source, f"{key}.offset_lines", overridden),
                               f"{st.offset_lines} + footprint {st.footprint_lines}",
                               f"a range inside the footprint ({cfg.footprint} lines)")
     if cfg.streams:
         for bad, key, allowed in (
-                (cfg.workload.pattern == "trace", "workload.pattern", "a synthetic pattern with [[streams]]"),
-                (cfg.workload.arrival == "closed", "workload.arrival", "an open-loop arrival with [[streams]]"),
+                (cfg.workload.pattern == "trace", "workload.pattern",
+                 "a synthetic pattern with [[streams]] (a trace is a stream of its own: pattern = 'trace' "
+                 "in [[streams]])"),
                 (cfg.workload.hint_lead_ns > 0, "workload.hint_lead_ns", "0 with [[streams]]"),
-                (cfg.cache.enabled, "cache.enabled", "false with [[streams]] (per-stream keys of a cached "
-                                                     "run are not modeled)"),
-                (sum(st.requests for st in cfg.streams) > MAX_REQUESTS, "streams",
+                (cfg.controller.hint_preset, "controller.hint_preset",
+                 "false with [[streams]] (the streams carry no hints)"),
+                (sum(st.requests for st in cfg.streams if st.pattern != "trace") > MAX_REQUESTS, "streams",
                  f"at most {MAX_REQUESTS} requests over all streams")):
             if bad:
                 raise ConfigError(_where(source, key, overridden), "this setting", allowed)
@@ -415,9 +515,26 @@ def load_config(
         items = list(overrides.items())
     elif overrides:
         items = [parse_assignment(s) for s in overrides]
+    written: dict[str, str] = {}          # streams[I].FIELD -> the form the user wrote
     for key, value in items:
-        set_dotted(data, key, value)
-    cfg = validate(data, name, {k for k, _ in items})
+        if stream_key(key) is not None:
+            written[_set_stream(data, key, value)] = key
+        elif key.startswith(("streams.", "streams[")):
+            check_stream_field(key, f"--set {key}")
+        else:
+            set_dotted(data, key, value)
+    try:
+        cfg = validate(data, name, {k for k, _ in items} | set(written))
+    except ConfigError as exc:
+        for canon, key in written.items():
+            if exc.where == f"--set {canon}":
+                raise ConfigError(f"--set {key}", exc.found, exc.allowed) from None
+        raise
+    for st in cfg.streams:
+        if st.trace and isinstance(source, (str, Path)) and not Path(st.trace).is_absolute() and \
+                not any(canon.endswith(".trace") and cfg.streams[int(canon[8:canon.index("]")])] is st
+                        for canon in written):
+            st.trace = str(Path(source).parent / st.trace)
     trace = cfg.workload.trace
     from_file = not any(k == "workload.trace" for k, _ in items)
     if trace and from_file and isinstance(source, (str, Path)) and not Path(trace).is_absolute():

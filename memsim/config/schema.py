@@ -444,9 +444,16 @@ class StreamSection(Section):
     """One request stream of a mix (``[[streams]]``); the rest of ``[workload]`` applies to all."""
 
     name: str = Field(..., pattern=r"^[A-Za-z0-9_]+$", description="Name of the stream (in its summary keys).")
-    pattern: Literal["uniform", "zipf", "hotspot", "sequential", "strided"] = Field(
-        "uniform", description="Address pattern of the stream.")
-    requests: int = Field(10_000, ge=1, le=MAX_REQUESTS, description="Requests the stream issues (in lines).")
+    pattern: Literal["uniform", "zipf", "hotspot", "sequential", "strided", "trace"] = Field(
+        "uniform", description="Address pattern of the stream (trace replays the stream's trace file).")
+    trace: str = Field("", description="Trace file of pattern trace (the formats of workload.trace); "
+                                       "a relative path is taken from the config file's folder.")
+    time_scale: float = Field(1.0, gt=0, le=1e6, description="Pattern trace: the trace's arrival times are "
+                                                         "multiplied by this (0.5 = twice the rate).")
+    start_ns: float = Field(0.0, ge=0, le=MAX_GAP_NS, description="Delay added to every arrival of the "
+                                                              "stream, ns.")
+    requests: int = Field(10_000, ge=1, le=MAX_REQUESTS, description="Requests the stream issues (in lines; "
+                                                                   "a trace stream replays its whole trace).")
     read_fraction: float = Field(0.7, ge=0, le=1, description="Share of the stream's requests that are reads.")
     arrival: Literal["poisson", "fixed", "onoff"] = Field("poisson", description="Arrival process.")
     interval_ns: float = Field(100.0, gt=0, le=MAX_GAP_NS, description="Mean time between arrivals, ns.")

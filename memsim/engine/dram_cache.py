@@ -36,6 +36,10 @@ from memsim.workload.chunk import HINT, READ, WRITE, Chunk
 
 REPLACEMENTS = ("lru", "fifo")
 
+# What became of each host request: it went on to the PCM (a read miss, a
+# hint), hit, or was a write miss the cache took without the PCM.
+PASSED, HIT, ABSORBED = 0, 1, 2
+
 # Counter slots.
 C_READ_HITS, C_READ_MISSES, C_WRITE_HITS, C_WRITE_MISSES, C_WRITEBACKS, C_CLOCK = range(6)
 
@@ -48,7 +52,7 @@ def _filter(op, line, time, data, has_data, tags, dirty, stamp, store, lru, coun
     n_out = 0
     for k in range(op.size):
         o = op[k]
-        hit[k] = False
+        hit[k] = PASSED
         if o == HINT:
             out_op[n_out] = o
             out_line[n_out] = line[k]
@@ -63,7 +67,7 @@ def _filter(op, line, time, data, has_data, tags, dirty, stamp, store, lru, coun
                 w = j
                 break
         if w >= 0:
-            hit[k] = True
+            hit[k] = HIT
             if lru:
                 counts[C_CLOCK] += 1
                 stamp[s, w] = counts[C_CLOCK]
@@ -94,7 +98,7 @@ def _filter(op, line, time, data, has_data, tags, dirty, stamp, store, lru, coun
             n_out += 1
         else:
             counts[C_WRITE_MISSES] += 1
-            hit[k] = True           # absorbed by the cache: done at arrival + hit_ns
+            hit[k] = ABSORBED       # done at arrival + hit_ns, though the line was not there
         if tags[s, v] >= 0 and dirty[s, v]:
             counts[C_WRITEBACKS] += 1
             out_op[n_out] = WRITE
@@ -145,6 +149,10 @@ class DramCache:
         self.counts = np.zeros(6, np.int64)
         self.hits = LatencyStream()                  # requests the cache completed
         self.last_hit_finish_ns = 0.0
+        # Per host request (op, arrival, hit), kept only when asked: per-stream
+        # keys of a mix attribute each request to its stream.
+        self.keep_host = False
+        self.host_log: list[tuple[np.ndarray, np.ndarray, np.ndarray]] = []
 
     @classmethod
     def from_config(cls, cfg) -> DramCache | None:
@@ -166,13 +174,16 @@ class DramCache:
         out_line = np.empty(2 * n, np.int64)
         out_time = np.empty(2 * n)
         out_data = np.zeros((2 * n if has_data else 1, self.line_bytes if has_data else 1), np.uint8)
-        hit = np.empty(n, np.bool_)
+        hit = np.empty(n, np.int8)
         m = _filter(chunk.op, chunk.line, chunk.time_ns, data, has_data, self.tags, self.dirty,
                     self.stamp, store, self.lru, self.counts, out_op, out_line, out_time, out_data, hit)
-        if hit.any():
-            t = chunk.time_ns[hit]
+        if self.keep_host:
+            self.host_log.append((chunk.op.copy(), chunk.time_ns.copy(), hit.copy()))
+        done_here = hit != PASSED
+        if done_here.any():
+            t = chunk.time_ns[done_here]
             done = t + self.hit_ns
-            self.hits.add(chunk.op[hit], t, done)
+            self.hits.add(chunk.op[done_here], t, done)
             self.last_hit_finish_ns = max(self.last_hit_finish_ns, float(done.max()))
         return Chunk(out_time[:m], out_op[:m], out_line[:m], out_data[:m] if has_data else None)
 
@@ -181,6 +192,17 @@ class DramCache:
             out = self.filter(ch)
             if len(out):
                 yield out
+
+    def host_requests(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """(op, arrival_ns, fate) of every host request so far, in order (``keep_host`` only).
+
+        ``fate`` is ``HIT``, ``ABSORBED`` (a write miss: the cache completes
+        it) or ``PASSED`` (a read miss: its line fill is a PCM read, in the
+        same order as the PCM reads).
+        """
+        if not self.host_log:
+            return np.empty(0, np.int8), np.empty(0), np.empty(0, np.int8)
+        return tuple(np.concatenate(parts) for parts in zip(*self.host_log))
 
     # ------------------------------------------------------------ results
     @property

@@ -296,7 +296,9 @@ class FastEngine(TimingEngine):
         nb = self.amap.total_banks
         empty = (np.zeros(0), np.zeros(0, np.int64), np.zeros((0, 4)), np.zeros((0, K.N_SI), np.int64))
         status = K.NEED_CHUNK
+        fed = False
         for chunk in self.source:
+            fed = True
             ops = prepare_ops(self, chunk)
             base = self._take_requests(ops)
             if not self.closed:
@@ -305,6 +307,13 @@ class FastEngine(TimingEngine):
             # its first event in the heap).
             self.ist[K.SRC_POS] = 0
             status = self._call(self._columns(ops), base)
+            if status != K.NEED_CHUNK:
+                raise RuntimeError(f"fast engine: unexpected kernel status {status}")
+        if not fed:
+            # No request at all (a cache that absorbed every one): the source
+            # still takes its first step, as the reference's source process does.
+            self.ist[K.SRC_POS] = 0
+            status = self._call(empty, 0)
             if status != K.NEED_CHUNK:
                 raise RuntimeError(f"fast engine: unexpected kernel status {status}")
         K.source_done(self.pi, self.ist, self.fst, self.bi, self.ht, self.hs, self.hp)

@@ -22,6 +22,7 @@ from typing import Any
 import numpy as np
 
 from memsim.config import RunConfig
+from memsim.config.load import check_stream_field, stream_key
 from memsim.errors import ConfigError
 from memsim.experiment.cache import RunCache
 from memsim.experiment.executors import Task, check_workers, make_executor
@@ -49,8 +50,15 @@ def check_key(key: str, where: str, reserved_why: str = "") -> None:
     ``reserved_why`` says, in the caller's words, where the reserved keys
     come from instead.
     """
+    if stream_key(key) is not None:
+        # One stream's setting; which streams exist is checked against the config it applies to.
+        check_stream_field(key, where)
+        return
     parts = key.split(".")
     sections = RunConfig.model_fields
+    if parts[0] == "streams":
+        raise ConfigError(where, f"unknown key '{key}'", "streams[I].FIELD (I from 0) or streams.NAME.FIELD "
+                                                         "for one stream's setting")
     if len(parts) != 2 or parts[0] not in sections:
         raise ConfigError(where, f"unknown key '{key}'", "section.key with a section among "
                           + ", ".join(sections))

@@ -16,7 +16,7 @@ from memsim.seeds import stream
 from memsim.tech.mlc_write import MlcProgrammer
 from memsim.tech.models import mlc_cell
 from memsim.tech.technology import uses_verify
-from memsim.workload.chunk import WRITE, Chunk
+from memsim.workload.chunk import HINT, WRITE, Chunk
 from memsim.workload.content import DataModel
 from memsim.workload.device_traffic import folded_address
 from memsim.workload.mix import StreamMerge
@@ -215,9 +215,21 @@ class RequestSource:
         self.cache = cache
 
     @property
+    def readers(self) -> list[TraceReader]:
+        """Every trace reader of the source (the workload's, or those of trace streams)."""
+        if self.reader is not None:
+            return [self.reader]
+        return list(self.mix.readers) if self.mix is not None else []
+
+    @property
     def bad_lines(self) -> int:
         """Malformed trace rows skipped so far (``workload.skip_bad``); 0 for synthetic streams."""
-        return self.reader.bad_lines if self.reader is not None else 0
+        return sum(r.bad_lines for r in self.readers)
+
+    def close(self) -> None:
+        """Stop the read-ahead threads of the source's traces."""
+        for r in self.readers:
+            r.close()
 
     def __iter__(self) -> Iterator[Chunk]:
         if self.cache is None:
@@ -278,8 +290,10 @@ def build_source(cfg: RunConfig, rng: np.random.Generator | None = None, *,
     filler = _Content(model, content_rng) if content and w.data != "flip" else None
     cache = DramCache.from_config(cfg) if front else None
     if cfg.streams:
-        mix = mixed_streams(cfg)
-        return RequestSource(mix, cfg.run.chunk_requests, filler, cache=cache, mix=mix)
+        mix = mixed_streams(cfg, content)
+        if cache is not None:
+            cache.keep_host = True        # per-stream keys need each host request's hit or miss
+        return RequestSource(mix, cfg.run.chunk_requests, None if mix.has_data else filler, cache=cache, mix=mix)
     if w.pattern != "trace":
         src = SyntheticSource(w, cfg.footprint, req_rng, cfg.run.chunk_requests,
                               address=folded_address(cfg, cfg.footprint))
@@ -307,22 +321,74 @@ _STREAM_KEYS = ("pattern", "requests", "read_fraction", "arrival", "interval_ns"
                 "hot_fraction", "hot_share", "stride_lines")
 
 
-def mixed_streams(cfg: RunConfig) -> StreamMerge:
-    """The ``[[streams]]`` of a config as one merged source (each on its own random stream)."""
-    sources, offsets = [], []
+def mixed_streams(cfg: RunConfig, content: bool = True) -> StreamMerge:
+    """The ``[[streams]]`` of a config as one merged source (each on its own random stream).
+
+    A trace stream (pattern ``trace``) replays its file: lines must lie in
+    the stream's own range (``footprint_lines`` from ``offset_lines``, or to
+    the end of the footprint) and are moved by ``offset_lines``; times become
+    ``time_ns * time_scale + start_ns``.  Hints of a trace stream are left
+    out (streams do not pre-program lines).  When a trace carries write
+    content, every stream's writes carry content: the synthetic streams'
+    drawn from the data model on their own streams ``write_content/j+1``, so
+    the merge is the same however the streams are cut into chunks.
+    """
+    w = cfg.workload
+    sources, offsets, readers = [], [], []
     for j, st in enumerate(cfg.streams):
-        wl = cfg.workload.model_copy(update={**{k: getattr(st, k) for k in _STREAM_KEYS},
-                                             "hint_lead_ns": 0.0})
-        rng = stream(cfg.run.seed, "requests", j + 1)      # each stream its own draws
         footprint = st.footprint_lines or cfg.footprint - st.offset_lines
-        sources.append(SyntheticSource(wl, footprint, rng, cfg.run.chunk_requests))
+        if st.pattern == "trace":
+            reader = read_trace(st.trace, chunk_size=cfg.run.chunk_requests, skip_bad=w.skip_bad,
+                                line_bytes=cfg.array.line_bytes, footprint=footprint)
+            readers.append(reader)
+            src: Iterable[Chunk] = reader
+        else:
+            wl = w.model_copy(update={**{k: getattr(st, k) for k in _STREAM_KEYS}, "hint_lead_ns": 0.0})
+            rng = stream(cfg.run.seed, "requests", j + 1)      # each stream its own draws
+            src = SyntheticSource(wl, footprint, rng, cfg.run.chunk_requests)
+            readers.append(None)
+        sources.append(_timed(src, st.time_scale, st.start_ns))
         offsets.append(st.offset_lines)
-    return StreamMerge(sources, offsets)
+    with_data = content and any(r is not None and r.has_data for r in readers)
+    if with_data:
+        if w.data == "flip":
+            name = next(st.trace for st, r in zip(cfg.streams, readers) if r is not None and r.has_data)
+            raise ConfigError("workload.data", f"'flip' with the trace {name}, which carries write content",
+                              "random, zeros or ones (flip draws changes to the stored content, a trace "
+                              "brings its own)")
+        model = DataModel(w.data, cfg.array.line_bytes, w.flip_fraction, w.one_fraction)
+        sources = [s if r is not None else _with_content(s, _Content(model, stream(cfg.run.seed, "write_content",
+                                                                                     j + 1)))
+                   for j, (s, r) in enumerate(zip(sources, readers))]
+    merge = StreamMerge(sources, offsets)
+    merge.readers = [r for r in readers if r is not None]
+    merge.has_data = with_data
+    return merge
+
+
+def _timed(chunks: Iterable[Chunk], scale: float, start_ns: float) -> Iterator[Chunk]:
+    """A stream's chunks without hints, its times scaled and delayed."""
+    for ch in chunks:
+        if (ch.op == HINT).any():
+            ch = ch.take(ch.op != HINT)
+        if scale != 1.0 or start_ns != 0.0:
+            ch = Chunk(ch.time_ns * scale + start_ns, ch.op, ch.line, ch.data)
+        yield ch
+
+
+def _with_content(chunks: Iterable[Chunk], filler: _Content) -> Iterator[Chunk]:
+    """A synthetic stream's chunks with the content of its writes drawn (the stream's k-th write,
+    the filler's k-th line, however the stream is cut)."""
+    for ch in chunks:
+        w = np.flatnonzero(ch.op == WRITE)
+        data = np.zeros((len(ch), filler.model.line_bytes), np.uint8)
+        data[w] = filler.take(w.size)
+        yield Chunk(ch.time_ns, ch.op, ch.line, data)
 
 
 def source_fields(source: RequestSource) -> dict[str, int]:
     """Summary keys about the request source: ``trace_bad_lines`` for trace runs."""
-    if source.reader is None:
+    if not source.readers:
         return {}
     return {"trace_bad_lines": source.bad_lines}
 

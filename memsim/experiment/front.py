@@ -13,7 +13,7 @@ from typing import Any
 import numpy as np
 
 from memsim.config import RunConfig
-from memsim.engine.dram_cache import DramCache, merged_latency
+from memsim.engine.dram_cache import HIT, PASSED, DramCache, merged_latency
 from memsim.engine.stream import LatencyStream
 from memsim.engine.timing import TimingTotals
 from memsim.workload.chunk import READ, WRITE
@@ -63,22 +63,49 @@ def front_fields(cfg: RunConfig, tot: TimingTotals, cache: DramCache | None) -> 
     return s
 
 
-def stream_fields(cfg: RunConfig, tot: TimingTotals, tags: np.ndarray) -> dict[str, Any]:
+def stream_fields(cfg: RunConfig, tot: TimingTotals, tags: np.ndarray,
+                  cache: DramCache | None = None) -> dict[str, Any]:
     """Per-stream keys of a mix: ``stream_<name>_{requests,reads,writes,throughput_gbps}`` and
-    ``stream_<name>_{read,write}_latency_{mean,p50,p95,p99}_ns`` (same histogram as the totals)."""
+    ``stream_<name>_{read,write}_latency_{mean,p50,p95,p99}_ns`` (same histogram as the totals),
+    ``stream_<name>_mean_in_system`` (time-average requests of the stream in the system).
+
+    With a DRAM cache these describe the host's requests of the stream, as
+    the ``overall_*`` keys do for all of them (hits at the cache's latency,
+    read misses when their line fill completes), and
+    ``stream_<name>_cache_{hit_rate,read_hit_rate}`` are added; throughput
+    is over ``overall_simulated_ns``.
+    """
+    if cache is None:
+        op_all, arrival, finish, sim = tot.op, tot.arrival_ns, tot.finish_ns, tot.simulated_ns
+        hit = None
+    else:
+        op_all, arrival, fate = cache.host_requests()
+        hit = fate == HIT
+        passed = fate == PASSED
+        finish = arrival + cfg.cache.hit_ns
+        fills = tot.op == READ
+        if int(fills.sum()) != int(passed.sum()) or len(fate) != len(tags):
+            raise RuntimeError("host requests and PCM line fills do not pair up")
+        finish[passed] = tot.finish_ns[fills]
+        sim = max(tot.simulated_ns, cache.last_hit_finish_ns)
     s: dict[str, Any] = {}
-    sim = tot.simulated_ns
     for j, st in enumerate(cfg.streams):
         mine = tags == j
-        op = tot.op[mine]
+        op = op_all[mine]
         stream = LatencyStream()
-        stream.add(op, tot.arrival_ns[mine], tot.finish_ns[mine])
+        stream.add(op, arrival[mine], finish[mine])
         n = int(mine.sum())
+        reads = int((op == READ).sum())
         p = f"stream_{st.name}_"
         s[p + "requests"] = n
-        s[p + "reads"] = int((op == READ).sum())
+        s[p + "reads"] = reads
         s[p + "writes"] = int((op == WRITE).sum())
         s[p + "throughput_gbps"] = n * cfg.array.line_bytes / sim if sim > 0 else 0.0
         s.update(stream.stats(READ, p + "read_latency"))
         s.update(stream.stats(WRITE, p + "write_latency"))
+        s[p + "mean_in_system"] = stream.mean_in_system(sim)
+        if hit is not None:
+            h = hit[mine]
+            s[p + "cache_hit_rate"] = float(h.mean()) if n else None
+            s[p + "cache_read_hit_rate"] = float(h[op == READ].mean()) if reads else None
     return s

@@ -223,7 +223,8 @@ def _simulate(cfg: RunConfig) -> RunResult:
         # With a cache in front the PCM sees fewer requests than the host sends.
         total = cfg.workload.requests if cfg.workload.pattern != "trace" and source.cache is None else None
         if cfg.streams:
-            total = sum(st.requests for st in cfg.streams)
+            traced = any(st.pattern == "trace" for st in cfg.streams)
+            total = None if traced or source.cache is not None else sum(st.requests for st in cfg.streams)
         chunks = track(source, total, "req", f"run {cfg.run.name}")
         # Per-stream keys come from each request's arrival and finish.
         run_cfg = cfg if not cfg.streams else cfg.model_copy(
@@ -234,14 +235,13 @@ def _simulate(cfg: RunConfig) -> RunResult:
             check_refresh_load(plan, lines_per_bank, service, expected_span_ns(cfg))
         tot = engine.run()
     finally:
-        if source.reader is not None:
-            source.reader.close()       # stop the trace's read-ahead thread on every path
+        source.close()       # stop the traces' read-ahead threads on every path
     refreshes = engine.agent.refreshes if engine.agent is not None else 0
     summary = summarize(cfg, tot, path, source.cache, refreshes)
     summary["engine"] = engine.name
     summary.update(front_fields(cfg, tot, source.cache))
     if source.mix is not None:
-        summary.update(stream_fields(cfg, tot, source.mix.stream_of_requests()))
+        summary.update(stream_fields(cfg, tot, source.mix.stream_of_requests(), source.cache))
     summary.update(refresh_fields(tot, engine.agent, summary))
     summary.update(erase_fields(engine, summary))
     summary.update(source_fields(source))

@@ -34,7 +34,7 @@ def make_trace(spec: str | os.PathLike[str] | Mapping, out: str | os.PathLike[st
     With ``with_data`` every write's content is stored.
 
     Returns ``{"path", "requests", "reads", "writes", "hints", "with_data",
-    "closed_loop"}``.
+    "closed_loop", "streams"}`` (streams: how many ``[[streams]]`` were merged).
     """
     from memsim.config import load_config
     from memsim.config.schema import WorkloadSection
@@ -63,7 +63,9 @@ def make_trace(spec: str | os.PathLike[str] | Mapping, out: str | os.PathLike[st
         raise UserError(str(out), "a folder", "the path of a trace file to write")
     check_folder(path.parent, str(out))
     name = Path(spec).name if isinstance(spec, (str, os.PathLike)) else "a config"
-    note = (f"made by memsim trace make from {name}: pattern {w.pattern}, arrival "
+    made_of = (f"streams {', '.join(f'{st.name} ({st.pattern})' for st in cfg.streams)}" if cfg.streams
+               else f"pattern {w.pattern}")
+    note = (f"made by memsim trace make from {name}: {made_of}, arrival "
             f"{w.arrival}, run.seed {cfg.run.seed}, line_bytes {cfg.array.line_bytes}; "
             + ("write content stored" if with_data else f"no write content (data model {w.data})"))
     counts = [0, 0, 0]
@@ -73,8 +75,11 @@ def make_trace(spec: str | os.PathLike[str] | Mapping, out: str | os.PathLike[st
     except OSError as exc:
         raise UserError(str(out), f"a file that cannot be written ({exc.strerror})",
                         "a writable path") from None
+    finally:
+        source.close()
     return {"path": str(path), "requests": int(n), "reads": counts[0], "writes": counts[1],
-            "hints": counts[2], "with_data": with_data, "closed_loop": w.arrival == "closed"}
+            "hints": counts[2], "with_data": with_data, "closed_loop": w.arrival == "closed",
+            "streams": len(cfg.streams)}
 
 
 def trace_summary(file: str | os.PathLike[str], *, skip_bad: bool = False, line_bytes: int = 64,

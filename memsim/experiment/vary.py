@@ -10,13 +10,19 @@ Written forms of a setting (command line ``--vary``, or strings in Python)::
     erase_ahead: write.scheme=block_erase,controller.write_cancel=true
                                                 the same, labelled
     as_configured:                              a label alone: the config as is
+    streams.web.interval_ns=50,100              one stream's field, the stream named
+                                                by its name ...
+    streams[1].interval_ns=50,100               ... or by its place in [[streams]]
+                                                (from 0); an unknown stream or field
+                                                is an error before anything runs
 
 Values are TOML literals (``true``, ``38400``, ``"text"``) or bare text;
 commas inside quotes or brackets do not split.  A workload is either a run
 config file (its keys are applied over the base config; its ``run.name``,
 ``run.seed`` and ``run.out_dir`` are ignored) or a group of overrides in the
 same form as a setting.  Overrides apply in the order base config, workload,
-``fixed``, setting.
+``fixed``, setting.  A workload file's ``[[streams]]`` replace the base
+config's streams as a whole (their traces found next to that file).
 """
 from __future__ import annotations
 
@@ -32,7 +38,8 @@ from memsim.config.load import parse_value, read_toml
 from memsim.errors import ConfigError
 from memsim.experiment.batch import RESERVED, check_key, flatten
 
-_ASSIGN = re.compile(r"^\s*([A-Za-z_][A-Za-z0-9_]*(?:\.[A-Za-z_][A-Za-z0-9_]*)+)\s*=(.*)$", re.DOTALL)
+# section.key, or one stream's key: streams[I].key or streams.NAME.key (names may start with a digit).
+_ASSIGN = re.compile(r"^\s*([A-Za-z_][A-Za-z0-9_]*(?:\[\d+\])?(?:\.[A-Za-z0-9_]+)+)\s*=(.*)$", re.DOTALL)
 
 
 @dataclass(frozen=True)
@@ -213,11 +220,19 @@ def workload_file(path: str | Path, origin: str, label: str | None = None) -> Gr
         raise ConfigError(origin, "no such file", "a run config file (TOML) or overrides section.key=value")
     flat = {k: v for k, v in flatten(read_toml(p)).items() if k not in RESERVED}
     for key in flat:
-        check_key(key, f"{p}: {key}")
+        if key != "streams":          # a workload's own [[streams]] replace the base config's
+            check_key(key, f"{p}: {key}")
     trace = flat.get("workload.trace")
     if isinstance(trace, str) and trace and not Path(trace).is_absolute():
         # As for a run config, a trace is found next to the file that names it.
         flat["workload.trace"] = str(p.parent / trace)
+    streams = flat.get("streams")
+    if isinstance(streams, list):
+        flat["streams"] = [
+            {**st, "trace": str(p.parent / st["trace"])}
+            if isinstance(st, dict) and isinstance(st.get("trace"), str) and st["trace"]
+            and not Path(st["trace"]).is_absolute() else st
+            for st in streams]
     return Group(label or p.stem, flat, str(p), True)
 
 

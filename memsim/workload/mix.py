@@ -1,10 +1,11 @@
 """Mixed streams: several request streams (cores, tenants) merged by arrival time.
 
-Each stream is its own synthetic generator with its own rate, footprint,
-address offset and read/write mix, on its own random stream.  The merge
+Each stream is its own synthetic generator (with its own rate, footprint,
+address offset and read/write mix, on its own random stream) or a trace.  The merge
 orders requests by arrival time, ties by stream index (then by order within
 the stream), so the mixed stream is a function of the streams alone, not of
-how they were cut into chunks.  The merger records which stream each
+how they were cut into chunks.  Write content passes through when every
+stream carries it (a chunk without content drops it from the merge).  The merger records which stream each
 request came from (``tags``), in the order it yields them.
 """
 from __future__ import annotations
@@ -31,6 +32,8 @@ class StreamMerge:
         self.streams = [iter(s) for s in streams]
         self.offsets = offsets
         self.tags: list[np.ndarray] = []
+        self.readers: list = []          # trace readers of trace streams (to close, to count bad rows)
+        self.has_data = False            # every stream's chunks carry write content
 
     def stream_of_requests(self) -> np.ndarray:
         """Stream index of every request yielded so far, in order."""
@@ -47,7 +50,7 @@ class StreamMerge:
                     if nxt is None:
                         live[j] = False
                     else:
-                        bufs[j] = Chunk(nxt.time_ns, nxt.op, nxt.line + self.offsets[j])
+                        bufs[j] = Chunk(nxt.time_ns, nxt.op, nxt.line + self.offsets[j], nxt.data)
             # Nothing later than the earliest last-buffered time of a live
             # stream can be overtaken: emit up to there.
             horizon = min((float(bufs[j].time_ns[-1]) for j in range(k) if live[j]), default=np.inf)
