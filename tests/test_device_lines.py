@@ -5,10 +5,10 @@ import numpy as np
 import pytest
 from conftest import DEMO, memsim_cli
 
-from memsim.engine import fixed_wear as fw
-from memsim.engine.device_wear import start_gap_device_wear
 from memsim.experiment.lifetime import lifetime
-from memsim.workload.device_traffic import DeviceTraffic, _runs, device_traffic, zipf_runs
+from memsim.policy.leveling import fixed_wear as fw
+from memsim.policy.leveling.device_wear import start_gap_device_wear
+from memsim.workload.device_traffic import DeviceTraffic, device_traffic, runs_of, zipf_runs
 
 LEVELERS = ("none", "start_gap", "randomized_start_gap", "security_refresh")
 PATTERNS = {
@@ -60,7 +60,7 @@ def test_start_gap_uniform_is_psi_over_psi_plus_one_of_no_leveling() -> None:
 
 
 def _hot(d: int, h: int, phi: float, at: int = 1000) -> DeviceTraffic:
-    b, r = _runs(np.array([at]), np.array([h]), np.array([phi / h]), d, (1 - phi) / (d - h))
+    b, r = runs_of(np.array([at]), np.array([h]), np.array([phi / h]), d, (1 - phi) / (d - h))
     return DeviceTraffic(b, r, True)
 
 
@@ -117,7 +117,7 @@ class _Wl:
 
 
 def test_start_gap_wear_agrees_with_the_block_form_at_one_line_per_block() -> None:
-    # Cross-check with memsim.engine.device_wear (checked there against a
+    # Cross-check with memsim.policy.leveling.device_wear (checked there against a
     # replay of the real leveler): one modeled line per device line.
     n, psi = 4096, 100
     rates = np.full(n, 0.5 / (n - 8))

@@ -5,8 +5,8 @@ import numpy as np
 import pytest
 from scipy.optimize import brentq
 
-from memsim.engine.device_wear import start_gap_device_lifetime, start_gap_device_wear
 from memsim.experiment.lifetime import lifetime
+from memsim.policy.leveling.device_wear import start_gap_device_lifetime, start_gap_device_wear
 
 GIB = 2**30
 
@@ -195,8 +195,8 @@ def test_randomized_start_gap_gives_no_estimate_where_the_approximation_fails() 
     # lifetime (by ~20% against the replay in the SMALL set-up with psi 100),
     # so the approximation gives none.  On a device of one modeled line per
     # device line the modeled leveler is exact and is used instead.
-    from memsim.engine.device_wear import randomized_start_gap_device_lifetime
     from memsim.metrics.death_law import DeathLaw
+    from memsim.policy.leveling.device_wear import randomized_start_gap_device_lifetime
     from memsim.tech.endurance import EnduranceModel
 
     law = DeathLaw(EnduranceModel(1e4, 0.1), 512, 0, 1.0)
@@ -261,7 +261,7 @@ def test_security_refresh_lifetime_does_not_depend_on_modeled_lines(pattern: str
 
 
 def test_security_refresh_round_load_closed_form() -> None:
-    from memsim.engine.device_wear import security_refresh_device_rates, security_refresh_round_load
+    from memsim.policy.leveling.device_wear import security_refresh_device_rates, security_refresh_round_load
 
     # Two regions of 4 blocks; block 0 takes 0.4, the rest 0.6 evenly.
     r = np.array([0.4, 0.1, 0.1, 0.1, 0.075, 0.075, 0.075, 0.075])

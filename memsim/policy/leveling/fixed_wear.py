@@ -31,10 +31,11 @@ Poisson), found by bisection.  Per leveler:
   from all ``D``.  Two share levels (a hot spot, uniform): the number of
   hot lines among them is hypergeometric and the wear follows exactly;
   otherwise the normal approximation of
-  :func:`memsim.engine.device_wear.randomized_start_gap_device_lifetime`
+  :func:`memsim.policy.leveling.device_wear.randomized_start_gap_device_lifetime`
   with its skewness guard (NaN = no estimate);
-* ``security_refresh`` with one region over the device (Seong et al.,
-  ISCA 2010): steady state, every line at ``(1 + 1 / interval) / D``;
+* ``security_refresh`` (Seong et al., ISCA 2010) with regions of
+  ``region_lines`` device lines (default one over the device): steady
+  state, every line of region ``g`` at ``(1 + 1 / interval) phi_g / R``;
   NaN when one key round can put more than 1% of a weak line's death wear
   on one physical line (then the steady state does not hold).
 """
@@ -45,7 +46,7 @@ from collections.abc import Callable
 import numpy as np
 from scipy import stats
 
-from memsim.engine.device_wear import first_crossing
+from memsim.policy.leveling.device_wear import first_crossing
 from memsim.workload.device_traffic import DeviceTraffic
 
 DeathCdf = Callable[[np.ndarray], np.ndarray]
@@ -140,7 +141,7 @@ def randomized_start_gap_writes(traffic: DeviceTraffic, cdf: DeathCdf, needed: i
 def _randomized_normal(traffic: DeviceTraffic, cdf: DeathCdf, needed: int, psi: int,
                        max_skew: float) -> float:
     """The normal approximation of
-    :func:`memsim.engine.device_wear.randomized_start_gap_device_lifetime`,
+    :func:`memsim.policy.leveling.device_wear.randomized_start_gap_device_lifetime`,
     with the moments of the device rates taken over the runs (weighted by
     their lengths); NaN where the window sum is too skewed for it."""
     d = float(traffic.lines)
@@ -172,10 +173,44 @@ def _randomized_normal(traffic: DeviceTraffic, cdf: DeathCdf, needed: int, psi: 
 
 
 def security_refresh_writes(traffic: DeviceTraffic, cdf: DeathCdf, needed: int, interval: int,
-                            weak_death: float) -> float:
-    """Device writes to end of life under Security Refresh over one device-wide region."""
+                            weak_death: float, region_lines: int | None = None) -> float:
+    """Device writes to end of life under Security Refresh with regions of ``region_lines`` device lines.
+
+    Region ``g`` (lines ``g R .. g R + R - 1``; default one region over the
+    device) takes the share ``phi_g`` of the writes; over many key rounds
+    each of its physical lines wears at ``phi_g / R (1 + 1 / interval)``
+    (Seong et al., ISCA 2010).  Regions inside one run of the traffic are
+    counted per run; only the regions holding a run boundary are evaluated
+    one by one, so the cost does not grow with the device.  NaN when one
+    round (``R interval`` writes to the region) can put more than 1% of a
+    weak line's death wear on one physical line: the hottest line of the
+    region takes ``v / phi_g`` of them.
+    """
     d = traffic.lines
-    if float(traffic.rate.max()) * d * interval > 0.01 * weak_death:
+    r = int(region_lines) if region_lines else 1 << (d - 1).bit_length()
+    b = traffic.bounds
+    v = traffic.rate
+    step = 1.0 + 1.0 / interval
+    # Whole regions inside run j: from ceil(b_j / R) to floor(b_{j+1} / R).
+    inside = np.maximum(b[1:] // r - (-(-b[:-1] // r)), 0).astype(np.float64)
+    # Regions holding a run boundary that is not a region boundary, and a last partial region.
+    inner = b[1:-1]
+    cut = np.unique(np.concatenate([inner[inner % r != 0] // r, [d // r] if d % r else []])).astype(np.int64)
+    lo = (cut * r).astype(np.float64)
+    hi = np.minimum((cut + 1) * r, d).astype(np.float64)
+    phi = traffic.cumulative(hi) - traffic.cumulative(lo)
+    # Hottest line of each cut region: the largest rate of the runs it overlaps.
+    j0 = np.searchsorted(b, lo, side="right") - 1
+    j1 = np.searchsorted(b, hi, side="left") - 1
+    hottest = np.array([v[a:z + 1].max() for a, z in zip(j0.tolist(), j1.tolist())]) if cut.size else np.zeros(0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        load = np.where(phi > 0, hottest * r * interval / phi, 0.0)
+    if (inside.sum() > 0 and interval > 0.01 * weak_death) or (load.size and load.max() > 0.01 * weak_death):
         return float("nan")
-    rate = (1.0 + 1.0 / interval) / d
-    return _bisect(lambda w: d * float(cdf(np.array([w * rate]))[0]), target_dead(needed), d)
+    lines_inside = inside * r
+    rate_cut = phi / r * step
+
+    def expected_dead(w: float) -> float:
+        return float(np.dot(lines_inside, cdf(w * v * step)) + r * cdf(w * rate_cut).sum())
+
+    return _bisect(expected_dead, target_dead(needed), d)
