@@ -10,7 +10,7 @@ from memsim.policy.leveling import fixed_wear as fw
 from memsim.policy.leveling.device_wear import start_gap_device_wear
 from memsim.workload.device_traffic import DeviceTraffic, device_traffic, runs_of, zipf_runs
 
-LEVELERS = ("none", "start_gap", "randomized_start_gap", "security_refresh")
+LEVELERS = ("none", "start_gap", "randomized_start_gap", "security_refresh", "hot_cold_swap")
 PATTERNS = {
     "uniform": {},
     "zipf": {"workload__hot_layout": "contiguous"},
@@ -242,10 +242,10 @@ def test_trace_line_beyond_the_device_is_one_line_error(tmp_path) -> None:
 def test_levelers_without_a_device_lines_evaluation_give_null_with_a_note() -> None:
     from memsim.experiment.run import simulate
 
-    s = _life(256, "hot_cold_swap", "uniform")
+    s = _life(256, "bit_rotation", "uniform")
     assert s["lifetime_years"] is None and "not evaluated" in s["lifetime_note"]
     t = simulate(None, array__lines=256, array__capacity_gib=1.0, workload__requests=2000,
-                 workload__sizing="device_lines", leveling__scheme="hot_cold_swap").summary
+                 workload__sizing="device_lines", leveling__scheme="bit_rotation").summary
     assert t["lifetime_years"] is None and "not evaluated" in t["lifetime_note"]
 
 

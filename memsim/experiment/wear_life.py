@@ -306,7 +306,9 @@ def device_scale_life(cfg: RunConfig, model: DeviceModel, law: DeathLaw, chunks:
         # Per modeled user write -> device writes (each stands for t of them).
         return DeviceLife(life.end_writes * t, life.first_failure_writes * t, life.dead_lines)
 
-    inp = ModeledInput(rates, scale.copies, scale.device_lines, cfg.lifetime.capacity_loss, law.cdf, deaths, steady)
+    weak = float(law.ppf(np.array([1.0 / scale.device_lines]))[0])
+    inp = ModeledInput(rates, scale.copies, scale.device_lines, cfg.lifetime.capacity_loss, law.cdf, deaths, steady,
+                       weak)
     life = model.modeled(inp)
     return (Lifetime("device_scale", life.end_writes / t, life.first_writes / t, life.dead_lines,
                      int(scale.device_lines)), life.note)

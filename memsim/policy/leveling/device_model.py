@@ -51,7 +51,9 @@ class ModeledInput:
     ``death``, ``weight``, ``needed``, ``exact``, ``first``);
     ``extrapolate(rates, deaths)`` gives the :class:`DeviceLife` of lines
     wearing at the steady ``rates`` (line-write equivalents per modeled user
-    write).  ``cdf`` is the line death law.
+    write).  ``cdf`` is the line death law, ``weak_death`` its ``1 / D``
+    quantile (about the weakest device line), for the guards of the
+    steady-state approximations.
     """
 
     rates: np.ndarray
@@ -61,6 +63,7 @@ class ModeledInput:
     cdf: DeathCdf
     deaths: Callable[[np.ndarray, float], Any]
     extrapolate: Callable[[np.ndarray, Any], DeviceLife]
+    weak_death: float
 
     @property
     def needed(self) -> int:

@@ -11,7 +11,13 @@ from __future__ import annotations
 
 import numpy as np
 
-from memsim.policy.leveling.device_model import DeviceLife, DeviceLinesInput, DeviceModel, ModeledInput
+from memsim.policy.leveling.device_model import (
+    DeviceLife,
+    DeviceLinesInput,
+    DeviceModel,
+    ModeledInput,
+    modeled_as_runs,
+)
 from memsim.policy.leveling.device_wear import (
     randomized_start_gap_device_lifetime,
     region_start_gap_device_lifetime,
@@ -25,6 +31,7 @@ from memsim.policy.leveling.fixed_wear import (
     security_refresh_writes,
     start_gap_writes,
 )
+from memsim.policy.leveling.hot_cold_device import hot_cold_swap_writes
 
 _MODELED_NOTE = ("its device-scale approximation does not hold for this traffic "
                  "(see memsim.policy.leveling.device_wear)")
@@ -149,3 +156,31 @@ class SecurityRefreshDevice(DeviceModel):
             return security_refresh_writes(inp.traffic, inp.cdf, k, self.interval, inp.weak_death, r)
 
         return _both(f(inp.needed), f, inp.needed)
+
+
+class HotColdSwapDevice(DeviceModel):
+    """Hot/cold region swapping: mixed steady state with stuck regions
+    (:mod:`memsim.policy.leveling.hot_cold_device`); ``region_lines`` and
+    ``period`` in device lines and device user writes."""
+
+    def __init__(self, region_lines: int, period: int) -> None:
+        self.region_lines, self.period = int(region_lines), int(period)
+        self.overhead = 2.0 * self.region_lines / self.period
+
+    def _life(self, bounds: np.ndarray, rate: np.ndarray, cdf, needed: int, weak: float) -> DeviceLife:
+        def f(k: int) -> tuple[float, str]:
+            return hot_cold_swap_writes(bounds, rate, cdf, k, self.region_lines, self.period, weak)
+
+        end, note = f(needed)
+        if np.isnan(end):
+            return DeviceLife.none(note)
+        first = end if needed == 1 else f(1)[0]
+        return DeviceLife(end, first, needed if np.isfinite(end) else 0)
+
+    def modeled(self, inp: ModeledInput) -> DeviceLife:
+        bounds, rate = modeled_as_runs(inp.rates, inp.copies)
+        return self._life(bounds, rate, inp.cdf, inp.needed, inp.weak_death)
+
+    def device_lines(self, inp: DeviceLinesInput) -> DeviceLife:
+        t = inp.traffic
+        return self._life(t.bounds, t.rate, inp.cdf, inp.needed, inp.weak_death)
