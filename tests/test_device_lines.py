@@ -269,3 +269,56 @@ def test_device_lines_agree_with_the_modeled_evaluation_at_one_line_per_device_l
     if leveler == "none":
         # Replaying every write to failure (scaled endurance, no leveler to outrun).
         assert a["lifetime_years"] == pytest.approx(b["lifetime_replay_years"], rel=0.03)
+
+
+@pytest.mark.parametrize("at", [5000, 1022])
+def test_security_refresh_regions_closed_form(at: int) -> None:
+    # Regions of R device lines, each re-keyed over many rounds: every line
+    # of region g wears at phi_g / R (1 + 1 / interval) (Seong et al., ISCA
+    # 2010).  A hot run of 4 lines with half the writes inside one region,
+    # or across a region boundary (at 1022: two regions share it).  The
+    # median end of life solves sum_g R cdf(W rate_g) = ln 2 (derived here).
+    from scipy.optimize import brentq
+
+    from memsim.metrics.death_law import DeathLaw
+    from memsim.tech.endurance import EnduranceModel
+
+    d, r, interval, h, phi = 1 << 20, 1024, 100, 4, 0.5
+    law = DeathLaw(EnduranceModel(1e8, 0.2), 512, 2, 0.5)
+    cold = (1 - phi) / (d - h)
+    b, v = runs_of(np.array([at]), np.array([h]), np.array([phi / h]), d, cold)
+    traffic = DeviceTraffic(b, v, True)
+    weak = float(law.ppf(np.array([1.0 / d]))[0])
+    got = fw.security_refresh_writes(traffic, law.cdf, 1, interval, weak, r)
+    share = np.full(d // r, cold * r)
+    for q in range(at, at + h):
+        share[q // r] += phi / h - cold
+    step = 1 + 1 / interval
+    want = brentq(lambda w: r * float(law.cdf(w * share / r * step).sum()) - np.log(2), 1.0, 1e20, rtol=1e-12)
+    assert got == pytest.approx(want, rel=1e-6)
+
+
+@pytest.mark.parametrize("pattern", list(PATTERNS))
+def test_security_refresh_regions_do_not_depend_on_the_modeled_line_count(pattern: str) -> None:
+    kw = {"workload__pattern": pattern, **PATTERNS[pattern]}
+    a, b = (lifetime(None, write_rate_gbps=1.0, method="extrapolated", array__lines=n, array__capacity_gib=1.0,
+                     workload__sizing="device_lines", workload__requests=4000, leveling__scheme="security_refresh",
+                     leveling__region_lines=1024, **kw).summary for n in (256, 4096))
+    assert a["lifetime_years"] > 0 and a["lifetime_leveling_scale"] == "device"
+    assert b["lifetime_years"] == pytest.approx(a["lifetime_years"], rel=0.05)
+
+
+def test_security_refresh_regions_agree_with_the_modeled_evaluation_at_one_line_per_device_line() -> None:
+    # The same 4096-line device and hot region (64 lines, half the writes)
+    # sized in device lines and as a share of the modeled lines, regions of
+    # 256 lines (the modeled figure is checked against a replay in
+    # tests/test_device_wear.py).  Within 3% (the spread of the weakest sampled line).
+    cap = 4096 * 64 / 2**30
+    common = dict(write_rate_gbps=1.0, method="extrapolated", array__lines=4096, array__capacity_gib=cap,
+                  workload__pattern="hotspot", workload__hot_layout="contiguous", workload__hot_share=0.5,
+                  leveling__scheme="security_refresh", leveling__region_lines=256, leveling__interval=4,
+                  workload__read_fraction=0.0, lifetime__window_writes=400_000)
+    a = lifetime(None, workload__sizing="device_lines", workload__hot_lines=64, **common).summary
+    b = lifetime(None, workload__hot_fraction=64 / 4096, **common).summary
+    assert b["lifetime_leveling_scale"] == "device"
+    assert a["lifetime_years"] == pytest.approx(b["lifetime_years"], rel=0.03)

@@ -372,3 +372,11 @@ def test_hot_cold_swap_gives_no_estimate_under_zipf_at_device_size() -> None:
                  workload__read_fraction=0.0, leveling__scheme="hot_cold_swap",
                  lifetime__window_writes=20_000).summary
     assert s["lifetime_years"] is None and "no device-scale estimate for hot_cold_swap" in s["lifetime_note"]
+
+
+def test_security_refresh_regions_against_direct_replay() -> None:
+    # Regions of 64 lines (region_lines in device lines), the hot region
+    # spanning one or two of them: each region's steady state (Seong et al.,
+    # ISCA 2010) against a replay of every write with the real leveler.
+    assert_replay_agrees({**SMALL, "leveling__scheme": "security_refresh", "leveling__interval": 4,
+                          "leveling__region_lines": 64, **HOT})
