@@ -271,14 +271,18 @@ def test_security_refresh_round_load_closed_form() -> None:
     assert security_refresh_round_load(r, 4, 10) == pytest.approx(0.4 * 4 * 10 / 0.7)
 
 
-@pytest.mark.parametrize(("extra", "tol"), [({"workload__pattern": "uniform"}, 0.03), (HOT, 0.08)])
-def test_region_start_gap_against_direct_replay(extra, tol) -> None:
+@pytest.mark.parametrize("extra", [{"workload__pattern": "uniform"}, HOT])
+def test_region_start_gap_against_direct_replay(extra) -> None:
     # Each region a Start-Gap of its own at device size; first death against
-    # a replay of every write with the real leveler.  Measured: within 3% on
-    # uniform traffic; on a contiguous hot region the device-scale figure is
-    # about 6% short of the replay (conservative), hence the wider bound.
+    # a replay of every write with the real leveler (Qureshi et al., MICRO
+    # 2009).  A region's line is the gap psi of every (n + 1) psi writes, so
+    # it hosts user lines n / (n + 1) of the time (1.5% on 64 lines; once
+    # left out, it made the figure conservative).  The first death on a hot
+    # region is the weakest of a few dozen lines, drawn apart for the two
+    # figures: single places scatter by ~3%, hence eight of them.  Measured
+    # mean ratio 1.006 over 12 places (standard error 0.007).
     assert_replay_agrees({**SMALL, "leveling__scheme": "region_start_gap", "leveling__psi": 20,
-                          "lifetime__capacity_loss": 0.0, **extra}, tol=tol)
+                          "lifetime__capacity_loss": 0.0, **extra}, seeds=range(1, 9), tol=0.03)
 
 
 @pytest.mark.parametrize("hot", [False, True])

@@ -51,7 +51,7 @@ swapping).
 from __future__ import annotations
 
 import numpy as np
-from scipy import stats
+from scipy import special
 
 from memsim.policy.leveling.device_model import DeathCdf
 from memsim.policy.leveling.device_wear import first_crossing
@@ -81,25 +81,52 @@ def _region_profile(b: np.ndarray, v: np.ndarray, region: int, g: int) -> np.nda
     return np.where(q < b[-1], v[j], 0.0)
 
 
+def _log_cdf(n: np.ndarray, lam: np.ndarray) -> np.ndarray:
+    """log P(Poisson(lam) <= n), accurate in both tails (-inf where it underflows)."""
+    upper = special.pdtrc(n, lam)
+    with np.errstate(divide="ignore"):
+        return np.where(upper < 0.5, np.log1p(-upper), np.log(special.pdtr(n, lam)))
+
+
 def _win_bounds(lam: np.ndarray, count: np.ndarray, ask: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Lower (strict win) and upper (win or tie) bounds of each asked type being the epoch's argmax."""
     top = float(lam.max())
-    n = np.arange(int(top + 12 * np.sqrt(top) + 30))
+    n = np.arange(int(top + 12 * np.sqrt(top) + 30), dtype=np.float64)
     total = np.zeros(n.size)
+    # By blocks of similar rates, each over the counts where its log-cdf is
+    # neither 0 (far above the rate) nor below -800 (far below: -inf).
+    order = np.argsort(lam)
     for lo in range(0, lam.size, _TYPES_BLOCK):
-        blk = lam[lo:lo + _TYPES_BLOCK]
-        c = count[lo:lo + _TYPES_BLOCK]
-        logf = stats.poisson.logcdf(n[None, :], blk[:, None])
-        total += (c[:, None] * np.where(c[:, None] > 0, logf, 0.0)).sum(axis=0)
-    la = lam[ask]
-    logf = stats.poisson.logcdf(n[None, :], la[:, None])
-    pmf = stats.poisson.pmf(n[None, :], la[:, None])
-    # Every other region at most n (where its own log-cdf underflows, its pmf is 0 too).
-    with np.errstate(invalid="ignore"):
-        others = np.where(np.isfinite(logf), total[None, :] - logf, -np.inf)
-    upper = (pmf * np.exp(np.minimum(others, 0.0))).sum(axis=1)
-    below = np.concatenate([np.full((la.size, 1), -np.inf), others[:, :-1]], axis=1)
-    lower = (pmf * np.exp(np.minimum(below, 0.0))).sum(axis=1)
+        idx = order[lo:lo + _TYPES_BLOCK]
+        c, blk = count[idx], lam[idx]
+        a = int(max(0.0, blk.min() - 40 * np.sqrt(blk.min()) - 40))
+        z = int(min(n.size, blk.max() + 40 * np.sqrt(blk.max()) + 40))
+        if a > 0:
+            total[:a] = np.where(c.sum() > 0, -np.inf, total[:a])
+        if z > a:
+            logf = _log_cdf(n[None, a:z], blk[:, None])
+            total[a:z] += (c[:, None] * np.where(c[:, None] > 0, logf, 0.0)).sum(axis=0)
+    lower = np.zeros(ask.size)
+    upper = np.zeros(ask.size)
+    sub = np.argsort(lam[ask])
+    for lo in range(0, ask.size, _TYPES_BLOCK):
+        k = sub[lo:lo + _TYPES_BLOCK]
+        la = lam[ask[k]][:, None]
+        a = int(max(0.0, la.min() - 40 * np.sqrt(la.min()) - 40))
+        z = int(min(n.size, la.max() + 40 * np.sqrt(la.max()) + 40))
+        m = n[None, a:z]
+        logf = _log_cdf(m, la)
+        with np.errstate(divide="ignore"):
+            pmf = np.exp(m * np.log(la) - la - special.gammaln(m + 1.0))
+        # Every other region at most n (where its own log-cdf underflows, its pmf is 0 too).
+        with np.errstate(invalid="ignore"):
+            others = np.where(np.isfinite(logf), total[None, a:z] - logf, -np.inf)
+            prev = np.concatenate([[-np.inf] if a == 0 else total[a - 1:a], total[a:z - 1]])
+            logf_prev = _log_cdf(m - 1.0, la) if a > 0 else np.concatenate(
+                [np.full((la.size, 1), -np.inf), logf[:, :-1]], axis=1)
+            below = np.where(np.isfinite(logf_prev), prev[None, :] - logf_prev, -np.inf)
+        upper[k] = (pmf * np.exp(np.minimum(others, 0.0))).sum(axis=1)
+        lower[k] = (pmf * np.exp(np.minimum(below, 0.0))).sum(axis=1)
     return lower, upper
 
 
