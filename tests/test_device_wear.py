@@ -310,7 +310,7 @@ def test_no_replay_of_a_remapping_leveler_on_fewer_lines_than_the_device() -> No
 HCS = {**SMALL, "leveling__scheme": "hot_cold_swap", "leveling__region_lines": 8}
 
 
-@pytest.mark.parametrize(("pattern", "period"), [("uniform", 100), ("zipf", 20)])
+@pytest.mark.parametrize(("pattern", "period"), [("uniform", 100), pytest.param("zipf", 20, marks=pytest.mark.slow)])
 def test_hot_cold_swap_approximation_against_direct_replay(pattern: str, period: int) -> None:
     # Mixed steady state (memsim.policy.leveling.hot_cold_device) against
     # replaying every write to failure with the real leveler (Zhou et al.,

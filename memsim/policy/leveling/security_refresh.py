@@ -51,7 +51,8 @@ class SecurityRefresh(Leveler):
         Generator the key secret is drawn from.
     region_lines:
         Region size S, a power of two; default the smallest power of two
-        >= N (one region).
+        >= N (one region).  Lifetime at device size counts it in device
+        lines (:class:`~memsim.policy.leveling.device_models.SecurityRefreshDevice`).
     interval:
         Writes to a region between two advances of its refresh pointer.
 
