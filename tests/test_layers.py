@@ -150,3 +150,21 @@ def test_no_module_imports_another_modules_private_names() -> None:
                 bad += [f"{me} imports {node.module}.{a.name}" for a in node.names
                         if a.name.startswith("_") and not a.name.startswith("__")]
     assert not bad, "\n".join(bad)
+
+
+def test_lifetime_does_not_dispatch_on_leveler_names() -> None:
+    # Each leveler reports its own device-scale evaluation
+    # (Leveler.device_model); the lifetime modules name none of them.
+    from memsim.policy.leveling import leveler_names
+
+    names = set(leveler_names()) - {"none"}       # "none" is also a method value there
+    found = []
+    for mod in ("experiment/lifetime.py", "experiment/wear_life.py", "experiment/fixed_lifetime.py"):
+        tree = ast.parse((PACKAGE / mod).read_text())
+        found += [f"{mod}: {n.value!r}" for n in ast.walk(tree)
+                  if isinstance(n, ast.Constant) and isinstance(n.value, str) and n.value in names]
+        # No test of a leveler's name or configured scheme at all.
+        found += [f"{mod}: line {n.lineno}" for n in ast.walk(tree) if isinstance(n, ast.Compare)
+                  and any(isinstance(x, ast.Attribute) and x.attr in ("name", "scheme")
+                          for x in [n.left, *n.comparators])]
+    assert not found, found
