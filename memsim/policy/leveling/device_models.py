@@ -28,6 +28,7 @@ from memsim.policy.leveling.device_wear import (
 from memsim.policy.leveling.fixed_wear import (
     none_writes,
     randomized_start_gap_writes,
+    region_start_gap_writes,
     security_refresh_writes,
     start_gap_writes,
 )
@@ -119,6 +120,13 @@ class RegionStartGapDevice(DeviceModel):
         first = inp.deaths(inp.rates, 0.0).first
         w = region_start_gap_device_lifetime(inp.rates, sizes, first[:, None], self.psi, inp.copies)
         return DeviceLife(w, w, 1 if np.isfinite(w) else 0)
+
+    def device_lines(self, inp: DeviceLinesInput) -> DeviceLife:
+        if not inp.traffic.layout_known:
+            return DeviceLife.none("the places of the Zipf ranks are not kept (scattered layout) and "
+                                   "Start-Gap depends on them")
+        f = lambda k: region_start_gap_writes(inp.traffic, inp.cdf, k, self.regions, self.psi)  # noqa: E731
+        return _both(f(inp.needed), f, inp.needed)
 
 
 class SecurityRefreshDevice(DeviceModel):

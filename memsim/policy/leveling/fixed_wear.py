@@ -26,6 +26,8 @@ Poisson), found by bisection.  Per leveler:
   after that the region's ``phi W`` writes are spread over ``K`` lines,
   ``phi G`` each -- the region moves one line per ``G`` writes, which on a
   large device is far slower than its lines wear;
+* ``region_start_gap`` (no randomizer): each region its own Start-Gap,
+  its gap moving every ``psi`` writes to the region;
 * ``randomized_start_gap``: the static randomizer scatters logical lines,
   so a physical line hosts ``K`` logical lines drawn without replacement
   from all ``D``.  Two share levels (a hot spot, uniform): the number of
@@ -75,7 +77,9 @@ def start_gap_wear(traffic: DeviceTraffic, q: np.ndarray, w: float, psi: int) ->
     g = (d + 1.0) * psi
     k = w / g
     q = np.asarray(q, dtype=np.float64)
-    return g * (traffic.cumulative(q + 1.0) - traffic.cumulative(q + 1.0 - k)) + k
+    # A line hosts each logical line for D psi of a cycle's (D + 1) psi writes
+    # (it is the gap for the other psi): negligible on a device, not on a region.
+    return g * d / (d + 1.0) * (traffic.cumulative(q + 1.0) - traffic.cumulative(q + 1.0 - k)) + k
 
 
 def start_gap_dead(traffic: DeviceTraffic, cdf: DeathCdf, w: float, psi: int) -> float:
@@ -104,6 +108,51 @@ def start_gap_writes(traffic: DeviceTraffic, cdf: DeathCdf, needed: int, psi: in
     if not traffic.layout_known:
         return float("nan")
     return _bisect(lambda w: start_gap_dead(traffic, cdf, w, psi), target_dead(needed), traffic.lines)
+
+
+def region_start_gap_writes(traffic: DeviceTraffic, cdf: DeathCdf, needed: int, regions: int, psi: int,
+                            max_kinds: int = 4096) -> float:
+    """Device writes to end of life under region Start-Gap (no randomizer); NaN: no estimate.
+
+    The ``D`` device lines are cut into ``regions`` runs of adjacent lines
+    (sizes differ by at most one, as in
+    :class:`~memsim.policy.leveling.region_start_gap.RegionStartGap`); region
+    ``g`` with share ``phi_g`` is a Start-Gap of its own whose gap moves
+    every ``psi`` writes *to the region*, so after ``W`` device writes it is
+    :func:`start_gap_dead` of the region's traffic after ``W phi_g`` region
+    writes (Qureshi et al., MICRO 2009).  Regions inside one run of the
+    traffic with the same size are alike and evaluated once.  NaN when the
+    layout is not known or the regions come in more than ``max_kinds`` kinds.
+    """
+    if not traffic.layout_known:
+        return float("nan")
+    d = traffic.lines
+    q, rem = divmod(d, int(regions))
+    g = np.arange(int(regions), dtype=np.int64)
+    lo = g * q + np.minimum(g, rem)
+    hi = lo + np.where(g < rem, q + 1, q)
+    b, v = traffic.bounds, traffic.rate
+    j_lo = np.searchsorted(b, lo, side="right") - 1
+    j_hi = np.searchsorted(b, hi - 1, side="right") - 1
+    inside = j_lo == j_hi
+    # One kind per (size, run) for regions inside a run, one per other region.
+    key = np.where(inside, (hi - lo) * (v.size + 1) + j_lo, -1 - g)
+    kinds, first, mult = np.unique(key, return_index=True, return_counts=True)
+    if kinds.size > max_kinds:
+        return float("nan")
+    parts = []
+    for i, m in zip(first.tolist(), mult.tolist()):
+        a, z = int(lo[i]), int(hi[i])
+        cut = np.unique(np.clip(b, a, z)) - a
+        sub_rate = v[np.searchsorted(b, cut[:-1] + a, side="right") - 1]
+        phi = float(np.dot(sub_rate, np.diff(cut)))
+        if phi > 0:
+            parts.append((DeviceTraffic(cut, sub_rate / phi, True), phi, float(m)))
+
+    def expected_dead(w: float) -> float:
+        return sum(m * start_gap_dead(t, cdf, w * phi, psi) for t, phi, m in parts)
+
+    return _bisect(expected_dead, target_dead(needed), d)
 
 
 def randomized_start_gap_writes(traffic: DeviceTraffic, cdf: DeathCdf, needed: int, psi: int,
