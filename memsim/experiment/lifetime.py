@@ -30,23 +30,27 @@ pattern ("traffic" in the summary):
 Leveling at device scale.  Running a leveler on the modeled lines moves its
 registers ``S`` times too fast in device terms (Start-Gap's Start advances one
 line per ``(N + 1) psi`` writes), so a hot region a real device cannot move
-across in its lifetime would look leveled.  Plain Start-Gap is therefore
-evaluated at device size in closed form (:mod:`memsim.engine.device_wear`):
-the workload's share of writes per modeled line is counted over the window,
-each modeled line stands for ``S`` adjacent device lines, and the wear of every
-device line under the device's own Start and Gap registers is summed
-exactly; lifetime is found by bisection on the device writes (cost O(lines)
-per step, independent of the device size).  With one modeled line per device
-line it agrees with a replay to failure of the real leveler within 3%
-(tests/test_device_wear.py).  Randomized Start-Gap is evaluated at device
-size by a normal approximation of each line's window sum (null where the
-sum is too skewed for it; its error against a replay is measured in the
-same tests), Security Refresh by its steady state over many key rounds.
-``lifetime_leveling_scale`` says which way a run went: ``device`` (these
-three, spread traffic) or ``modeled`` (the attack patterns; none and
-bit rotation, which do not depend on the line count; region Start-Gap and
-hot/cold swap, which then give no estimate when a modeled line stands for
-more than one device line).
+across in its lifetime would look leveled.  Each leveler therefore
+evaluates itself at device size (:meth:`~memsim.policy.leveling.base.Leveler.device_model`,
+:mod:`memsim.policy.leveling.device_models`): the workload's share of
+writes per modeled line is counted over the window (or is the pattern's
+expected share), each modeled line stands for ``S`` adjacent device lines,
+and the leveler's model gives the device writes to end of life.  Plain
+Start-Gap sums the wear of every device line under the device's own Start
+and Gap registers exactly (bisection on the device writes, cost O(lines)
+per step, independent of the device size); region Start-Gap does so per
+region; randomized Start-Gap takes each line's window sum as normal (null
+where the sum is too skewed); Security Refresh is its steady state over many
+key rounds; hot/cold swap its mixed steady state with stuck regions (null
+in between).  With one modeled line per device line each agrees with a
+replay to failure of the real leveler (tests/test_device_wear.py, errors
+stated there and in each model).  ``lifetime_leveling_scale`` says which way
+a run went: ``device`` (a leveler with a device model, spread traffic) or
+``modeled`` (the attack patterns; bit rotation and the block-erase pool,
+which do not depend on the line count; randomized region Start-Gap, which
+gives no estimate when a modeled line stands for more than one device line;
+a model that gives none on a device of one modeled line per device line,
+where the modeled leveler is the device).
 
 The ideal lifetime is perfect leveling of full-line writes over the whole
 device, ``endurance_mean * capacity / write_rate``; schemes that program
