@@ -384,3 +384,18 @@ def test_security_refresh_regions_against_direct_replay() -> None:
     # ISCA 2010) against a replay of every write with the real leveler.
     assert_replay_agrees({**SMALL, "leveling__scheme": "security_refresh", "leveling__interval": 4,
                           "leveling__region_lines": 64, **HOT})
+
+
+@pytest.mark.parametrize("hot", [False, True])
+def test_bit_rotation_over_no_remapping_does_not_depend_on_modeled_lines(hot: bool) -> None:
+    # Rotating bits within a line moves no line, so the modeled lines'
+    # wear holds for the device (each stands for its device lines): 16x more
+    # modeled lines, within 5% (DESIGN.md).
+    extra = ({"workload__pattern": "hotspot", "workload__hot_fraction": 1 / 64, "workload__hot_share": 0.5,
+              "workload__hot_layout": "contiguous"} if hot else {"workload__pattern": "uniform"})
+    years = [lifetime(None, write_rate_gbps=1.0, method="extrapolated", array__lines=n,
+                      workload__read_fraction=0.0, leveling__scheme="bit_rotation", leveling__inner="none",
+                      lifetime__window_writes=n * 100, **extra).summary["lifetime_years"]
+             for n in (1024, 16384)]
+    assert years[0] is not None
+    assert years[1] == pytest.approx(years[0], rel=0.05)
