@@ -5,12 +5,12 @@ import numpy as np
 import pytest
 from conftest import DEMO, memsim_cli
 
-from memsim.engine import fixed_wear as fw
-from memsim.engine.device_wear import start_gap_device_wear
 from memsim.experiment.lifetime import lifetime
-from memsim.workload.device_traffic import DeviceTraffic, _runs, device_traffic, zipf_runs
+from memsim.policy.leveling import fixed_wear as fw
+from memsim.policy.leveling.device_wear import start_gap_device_wear
+from memsim.workload.device_traffic import DeviceTraffic, device_traffic, runs_of, zipf_runs
 
-LEVELERS = ("none", "start_gap", "randomized_start_gap", "security_refresh")
+LEVELERS = ("none", "start_gap", "randomized_start_gap", "region_start_gap", "security_refresh", "hot_cold_swap")
 PATTERNS = {
     "uniform": {},
     "zipf": {"workload__hot_layout": "contiguous"},
@@ -60,7 +60,7 @@ def test_start_gap_uniform_is_psi_over_psi_plus_one_of_no_leveling() -> None:
 
 
 def _hot(d: int, h: int, phi: float, at: int = 1000) -> DeviceTraffic:
-    b, r = _runs(np.array([at]), np.array([h]), np.array([phi / h]), d, (1 - phi) / (d - h))
+    b, r = runs_of(np.array([at]), np.array([h]), np.array([phi / h]), d, (1 - phi) / (d - h))
     return DeviceTraffic(b, r, True)
 
 
@@ -117,7 +117,7 @@ class _Wl:
 
 
 def test_start_gap_wear_agrees_with_the_block_form_at_one_line_per_block() -> None:
-    # Cross-check with memsim.engine.device_wear (checked there against a
+    # Cross-check with memsim.policy.leveling.device_wear (checked there against a
     # replay of the real leveler): one modeled line per device line.
     n, psi = 4096, 100
     rates = np.full(n, 0.5 / (n - 8))
@@ -242,10 +242,10 @@ def test_trace_line_beyond_the_device_is_one_line_error(tmp_path) -> None:
 def test_levelers_without_a_device_lines_evaluation_give_null_with_a_note() -> None:
     from memsim.experiment.run import simulate
 
-    s = _life(256, "hot_cold_swap", "uniform")
+    s = _life(256, "bit_rotation", "uniform")
     assert s["lifetime_years"] is None and "not evaluated" in s["lifetime_note"]
     t = simulate(None, array__lines=256, array__capacity_gib=1.0, workload__requests=2000,
-                 workload__sizing="device_lines", leveling__scheme="hot_cold_swap").summary
+                 workload__sizing="device_lines", leveling__scheme="bit_rotation").summary
     assert t["lifetime_years"] is None and "not evaluated" in t["lifetime_note"]
 
 
@@ -269,3 +269,82 @@ def test_device_lines_agree_with_the_modeled_evaluation_at_one_line_per_device_l
     if leveler == "none":
         # Replaying every write to failure (scaled endurance, no leveler to outrun).
         assert a["lifetime_years"] == pytest.approx(b["lifetime_replay_years"], rel=0.03)
+
+
+@pytest.mark.parametrize("at", [5000, 1022])
+def test_security_refresh_regions_closed_form(at: int) -> None:
+    # Regions of R device lines, each re-keyed over many rounds: every line
+    # of region g wears at phi_g / R (1 + 1 / interval) (Seong et al., ISCA
+    # 2010).  A hot run of 4 lines with half the writes inside one region,
+    # or across a region boundary (at 1022: two regions share it).  The
+    # median end of life solves sum_g R cdf(W rate_g) = ln 2 (derived here).
+    from scipy.optimize import brentq
+
+    from memsim.metrics.death_law import DeathLaw
+    from memsim.tech.endurance import EnduranceModel
+
+    d, r, interval, h, phi = 1 << 20, 1024, 100, 4, 0.5
+    law = DeathLaw(EnduranceModel(1e8, 0.2), 512, 2, 0.5)
+    cold = (1 - phi) / (d - h)
+    b, v = runs_of(np.array([at]), np.array([h]), np.array([phi / h]), d, cold)
+    traffic = DeviceTraffic(b, v, True)
+    weak = float(law.ppf(np.array([1.0 / d]))[0])
+    got = fw.security_refresh_writes(traffic, law.cdf, 1, interval, weak, r)
+    share = np.full(d // r, cold * r)
+    for q in range(at, at + h):
+        share[q // r] += phi / h - cold
+    step = 1 + 1 / interval
+    want = brentq(lambda w: r * float(law.cdf(w * share / r * step).sum()) - np.log(2), 1.0, 1e20, rtol=1e-12)
+    assert got == pytest.approx(want, rel=1e-6)
+
+
+@pytest.mark.parametrize("pattern", list(PATTERNS))
+def test_security_refresh_regions_do_not_depend_on_the_modeled_line_count(pattern: str) -> None:
+    kw = {"workload__pattern": pattern, **PATTERNS[pattern]}
+    a, b = (lifetime(None, write_rate_gbps=1.0, method="extrapolated", array__lines=n, array__capacity_gib=1.0,
+                     workload__sizing="device_lines", workload__requests=4000, leveling__scheme="security_refresh",
+                     leveling__region_lines=1024, **kw).summary for n in (256, 4096))
+    assert a["lifetime_years"] > 0 and a["lifetime_leveling_scale"] == "device"
+    assert b["lifetime_years"] == pytest.approx(a["lifetime_years"], rel=0.05)
+
+
+def test_security_refresh_regions_agree_with_the_modeled_evaluation_at_one_line_per_device_line() -> None:
+    # The same 4096-line device and hot region (64 lines, half the writes)
+    # sized in device lines and as a share of the modeled lines, regions of
+    # 256 lines (the modeled figure is checked against a replay in
+    # tests/test_device_wear.py).  Within 3% (the spread of the weakest sampled line).
+    cap = 4096 * 64 / 2**30
+    common = dict(write_rate_gbps=1.0, method="extrapolated", array__lines=4096, array__capacity_gib=cap,
+                  workload__pattern="hotspot", workload__hot_layout="contiguous", workload__hot_share=0.5,
+                  leveling__scheme="security_refresh", leveling__region_lines=256, leveling__interval=4,
+                  workload__read_fraction=0.0, lifetime__window_writes=400_000)
+    a = lifetime(None, workload__sizing="device_lines", workload__hot_lines=64, **common).summary
+    b = lifetime(None, workload__hot_fraction=64 / 4096, **common).summary
+    assert b["lifetime_leveling_scale"] == "device"
+    assert a["lifetime_years"] == pytest.approx(b["lifetime_years"], rel=0.03)
+
+
+@pytest.mark.parametrize("pattern", ["hotspot", "zipf"])
+def test_region_start_gap_agrees_with_the_modeled_evaluation_at_one_line_per_device_line(pattern: str) -> None:
+    # Region Start-Gap (Qureshi et al., MICRO 2009) on a 4096-line device,
+    # sized in device lines and as modeled lines one per device line (the
+    # modeled figure is checked against a replay in tests/test_device_wear.py);
+    # first death.  Within 3% (the spread of the weakest sampled line).
+    cap = 4096 * 64 / 2**30
+    common = dict(write_rate_gbps=1.0, method="extrapolated", array__lines=4096, array__capacity_gib=cap,
+                  workload__pattern=pattern, workload__hot_layout="contiguous", workload__hot_share=0.5,
+                  leveling__scheme="region_start_gap", leveling__psi=20, lifetime__capacity_loss=0.0,
+                  workload__read_fraction=0.0, lifetime__window_writes=400_000)
+    a = lifetime(None, workload__sizing="device_lines", workload__hot_lines=64, **common).summary
+    b = lifetime(None, workload__hot_fraction=64 / 4096, **common).summary
+    assert b["lifetime_leveling_scale"] == "device"
+    assert a["lifetime_years"] == pytest.approx(b["lifetime_years"], rel=0.03)
+
+
+def test_region_start_gap_uniform_is_psi_over_psi_plus_one_of_no_leveling() -> None:
+    # Uniform traffic: each region's lines take its writes and one gap move
+    # per psi of them, over n + 1 lines for n logical ones (Qureshi et al.,
+    # MICRO 2009); n = 2^21 here, so psi / (psi + 1) of no leveling.
+    none = _life(256, "none", "uniform")["lifetime_years"]
+    rsg = _life(256, "region_start_gap", "uniform")["lifetime_years"]
+    assert rsg / none == pytest.approx(100 / 101, rel=1e-3)

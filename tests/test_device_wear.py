@@ -5,8 +5,8 @@ import numpy as np
 import pytest
 from scipy.optimize import brentq
 
-from memsim.engine.device_wear import start_gap_device_lifetime, start_gap_device_wear
 from memsim.experiment.lifetime import lifetime
+from memsim.policy.leveling.device_wear import start_gap_device_lifetime, start_gap_device_wear
 
 GIB = 2**30
 
@@ -195,8 +195,8 @@ def test_randomized_start_gap_gives_no_estimate_where_the_approximation_fails() 
     # lifetime (by ~20% against the replay in the SMALL set-up with psi 100),
     # so the approximation gives none.  On a device of one modeled line per
     # device line the modeled leveler is exact and is used instead.
-    from memsim.engine.device_wear import randomized_start_gap_device_lifetime
     from memsim.metrics.death_law import DeathLaw
+    from memsim.policy.leveling.device_wear import randomized_start_gap_device_lifetime
     from memsim.tech.endurance import EnduranceModel
 
     law = DeathLaw(EnduranceModel(1e4, 0.1), 512, 0, 1.0)
@@ -261,7 +261,7 @@ def test_security_refresh_lifetime_does_not_depend_on_modeled_lines(pattern: str
 
 
 def test_security_refresh_round_load_closed_form() -> None:
-    from memsim.engine.device_wear import security_refresh_device_rates, security_refresh_round_load
+    from memsim.policy.leveling.device_wear import security_refresh_device_rates, security_refresh_round_load
 
     # Two regions of 4 blocks; block 0 takes 0.4, the rest 0.6 evenly.
     r = np.array([0.4, 0.1, 0.1, 0.1, 0.075, 0.075, 0.075, 0.075])
@@ -271,14 +271,18 @@ def test_security_refresh_round_load_closed_form() -> None:
     assert security_refresh_round_load(r, 4, 10) == pytest.approx(0.4 * 4 * 10 / 0.7)
 
 
-@pytest.mark.parametrize(("extra", "tol"), [({"workload__pattern": "uniform"}, 0.03), (HOT, 0.08)])
-def test_region_start_gap_against_direct_replay(extra, tol) -> None:
+@pytest.mark.parametrize("extra", [{"workload__pattern": "uniform"}, HOT])
+def test_region_start_gap_against_direct_replay(extra) -> None:
     # Each region a Start-Gap of its own at device size; first death against
-    # a replay of every write with the real leveler.  Measured: within 3% on
-    # uniform traffic; on a contiguous hot region the device-scale figure is
-    # about 6% short of the replay (conservative), hence the wider bound.
+    # a replay of every write with the real leveler (Qureshi et al., MICRO
+    # 2009).  A region's line is the gap psi of every (n + 1) psi writes, so
+    # it hosts user lines n / (n + 1) of the time (1.5% on 64 lines; once
+    # left out, it made the figure conservative).  The first death on a hot
+    # region is the weakest of a few dozen lines, drawn apart for the two
+    # figures: single places scatter by ~3%, hence eight of them.  Measured
+    # mean ratio 1.006 over 12 places (standard error 0.007).
     assert_replay_agrees({**SMALL, "leveling__scheme": "region_start_gap", "leveling__psi": 20,
-                          "lifetime__capacity_loss": 0.0, **extra}, tol=tol)
+                          "lifetime__capacity_loss": 0.0, **extra}, seeds=range(1, 9), tol=0.03)
 
 
 @pytest.mark.parametrize("hot", [False, True])
@@ -301,3 +305,97 @@ def test_no_replay_of_a_remapping_leveler_on_fewer_lines_than_the_device() -> No
                  workload__read_fraction=0.0, leveling__scheme="start_gap",
                  lifetime__window_writes=20_000).summary
     assert r["lifetime_years"] is None and "no replay" in r["lifetime_note"]
+
+
+HCS = {**SMALL, "leveling__scheme": "hot_cold_swap", "leveling__region_lines": 8}
+
+
+@pytest.mark.parametrize(("pattern", "period"), [("uniform", 100), pytest.param("zipf", 20, marks=pytest.mark.slow)])
+def test_hot_cold_swap_approximation_against_direct_replay(pattern: str, period: int) -> None:
+    # Mixed steady state (memsim.policy.leveling.hot_cold_device) against
+    # replaying every write to failure with the real leveler (Zhou et al.,
+    # ISCA 2009 segment swapping), one modeled line per device line.
+    # Measured: within 1% on uniform traffic, 2% under Zipf (period 20,
+    # where every region of above-mean heat wins epochs often enough).
+    assert_replay_agrees({**HCS, "leveling__period": period, "workload__pattern": pattern})
+
+
+@pytest.mark.parametrize("period", [100, 500])
+def test_hot_cold_swap_approximation_against_direct_replay_hot_region(period: int) -> None:
+    # A contiguous hot region (5% of the lines, half the writes) at eight
+    # places (seeds).  Where the approximation gives a number it must agree
+    # with the replay (measured: within 2% each); where a region is neither
+    # leveled nor left in place (a region at the hot run's edge that wins
+    # the epoch now and then) it gives none -- there the mixed figure would
+    # have been up to 36% long (measured, period 500) -- and the modeled
+    # leveler, which is the device here, is used.
+    given = []
+    for seed in range(1, 9):
+        s = lifetime(None, **HCS, leveling__period=period, **HOT, run__seed=seed).summary
+        assert s["lifetime_replay_reached_end"]
+        if s["lifetime_leveling_scale"] == "device":
+            given.append(s["lifetime_replay_over_extrapolated"])
+    r = np.asarray(given)
+    assert r.size >= 3, r
+    assert np.all(np.abs(r - 1.0) <= 0.05), r
+    assert abs(r.mean() - 1.0) <= 0.03, r
+
+
+@pytest.mark.parametrize("hot", [False, True])
+def test_hot_cold_swap_lifetime_does_not_depend_on_modeled_lines(hot: bool) -> None:
+    # 16 GiB, default regions (64 lines) and period (10,000 writes): the
+    # device's regions do not change with array.lines, nor does the lifetime.
+    extra = ({"workload__pattern": "hotspot", "workload__hot_fraction": 1 / 64, "workload__hot_share": 0.5,
+              "workload__hot_layout": "contiguous"} if hot else {"workload__pattern": "uniform"})
+    years = [lifetime(None, write_rate_gbps=1.0, method="extrapolated", array__lines=n,
+                      workload__read_fraction=0.0, leveling__scheme="hot_cold_swap",
+                      lifetime__window_writes=n * 20, **extra).summary["lifetime_years"]
+             for n in (1024, 16384)]
+    assert years[0] is not None
+    assert years[1] == pytest.approx(years[0], rel=0.05)
+
+
+def test_hot_cold_swap_uniform_overhead_closed_form() -> None:
+    # Uniform traffic, no endurance variation: every line takes 1 / D of the
+    # user writes and its part of one 2 G-line swap per period, so lifetime
+    # is 1 / (1 + 2 G / P) of no leveling (Zhou et al., ISCA 2009: a swap
+    # copies both regions; derived here).
+    kw = dict(write_rate_gbps=1.0, method="extrapolated", array__lines=1024, array__capacity_gib=1.0,
+              workload__pattern="uniform", workload__read_fraction=0.0, write__scheme="full_line",
+              cell__endurance_cov=0.0, lifetime__window_writes=10_000)
+    none = lifetime(None, leveling__scheme="none", **kw).summary["lifetime_years"]
+    hcs = lifetime(None, leveling__scheme="hot_cold_swap", leveling__region_lines=64, leveling__period=10_000,
+                   **kw).summary["lifetime_years"]
+    assert hcs / none == pytest.approx(1 / (1 + 2 * 64 / 10_000), rel=1e-3)
+
+
+def test_hot_cold_swap_gives_no_estimate_under_zipf_at_device_size() -> None:
+    # Zipf over 16 GiB: the first region wins every epoch, the next ones
+    # neither win often enough to be leveled nor never: null with a note.
+    s = lifetime(None, write_rate_gbps=1.0, method="extrapolated", workload__pattern="zipf",
+                 workload__read_fraction=0.0, leveling__scheme="hot_cold_swap",
+                 lifetime__window_writes=20_000).summary
+    assert s["lifetime_years"] is None and "no device-scale estimate for hot_cold_swap" in s["lifetime_note"]
+
+
+def test_security_refresh_regions_against_direct_replay() -> None:
+    # Regions of 64 lines (region_lines in device lines), the hot region
+    # spanning one or two of them: each region's steady state (Seong et al.,
+    # ISCA 2010) against a replay of every write with the real leveler.
+    assert_replay_agrees({**SMALL, "leveling__scheme": "security_refresh", "leveling__interval": 4,
+                          "leveling__region_lines": 64, **HOT})
+
+
+@pytest.mark.parametrize("hot", [False, True])
+def test_bit_rotation_over_no_remapping_does_not_depend_on_modeled_lines(hot: bool) -> None:
+    # Rotating bits within a line moves no line, so the modeled lines'
+    # wear holds for the device (each stands for its device lines): 16x more
+    # modeled lines, within 5% (DESIGN.md).
+    extra = ({"workload__pattern": "hotspot", "workload__hot_fraction": 1 / 64, "workload__hot_share": 0.5,
+              "workload__hot_layout": "contiguous"} if hot else {"workload__pattern": "uniform"})
+    years = [lifetime(None, write_rate_gbps=1.0, method="extrapolated", array__lines=n,
+                      workload__read_fraction=0.0, leveling__scheme="bit_rotation", leveling__inner="none",
+                      lifetime__window_writes=n * 100, **extra).summary["lifetime_years"]
+             for n in (1024, 16384)]
+    assert years[0] is not None
+    assert years[1] == pytest.approx(years[0], rel=0.05)

@@ -130,3 +130,41 @@ def test_no_import_cycle_besides_the_known_one() -> None:
 
 def test_run_and_lifetime_do_not_import_each_other() -> None:
     assert not any(c >= {"memsim.experiment.run", "memsim.experiment.lifetime"} for c in _cycles())
+
+
+# Private helpers shared between the trace modules, left for their owners to make public.
+KNOWN_PRIVATE = {"memsim.workload.trace", "memsim.workload.trace_reader", "memsim.workload.trace_shape",
+                 "memsim.workload.trace_writer"}
+
+
+def test_no_module_imports_another_modules_private_names() -> None:
+    # A helper two modules share is public in one of them (an underscore
+    # name is that module's own business).
+    bad = []
+    for path in sorted(PACKAGE.rglob("*.py")):
+        me = module_name(path)
+        if me in KNOWN_PRIVATE:
+            continue
+        for node in ast.walk(ast.parse(path.read_text(), filename=str(path))):
+            if isinstance(node, ast.ImportFrom) and (node.module or "").startswith("memsim"):
+                bad += [f"{me} imports {node.module}.{a.name}" for a in node.names
+                        if a.name.startswith("_") and not a.name.startswith("__")]
+    assert not bad, "\n".join(bad)
+
+
+def test_lifetime_does_not_dispatch_on_leveler_names() -> None:
+    # Each leveler reports its own device-scale evaluation
+    # (Leveler.device_model); the lifetime modules name none of them.
+    from memsim.policy.leveling import leveler_names
+
+    names = set(leveler_names()) - {"none"}       # "none" is also a method value there
+    found = []
+    for mod in ("experiment/lifetime.py", "experiment/wear_life.py", "experiment/fixed_lifetime.py"):
+        tree = ast.parse((PACKAGE / mod).read_text())
+        found += [f"{mod}: {n.value!r}" for n in ast.walk(tree)
+                  if isinstance(n, ast.Constant) and isinstance(n.value, str) and n.value in names]
+        # No test of a leveler's name or configured scheme at all.
+        found += [f"{mod}: line {n.lineno}" for n in ast.walk(tree) if isinstance(n, ast.Compare)
+                  and any(isinstance(x, ast.Attribute) and x.attr in ("name", "scheme")
+                          for x in [n.left, *n.comparators])]
+    assert not found, found

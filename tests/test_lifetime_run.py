@@ -20,7 +20,8 @@ from memsim.errors import ConfigError
 from memsim.experiment.build import build_path
 from memsim.experiment.lifetime import lifetime
 from memsim.experiment.run import resolve
-from memsim.experiment.wear_life import leveling_cycle_writes, lifetime_fields, pooled_profile, wear_tables
+from memsim.experiment.wear_life import leveling_cycle_writes, lifetime_fields, wear_tables
+from memsim.experiment.wear_profile import pooled_profile
 from memsim.metrics.death_law import DeathLaw, cell_cdf, device_deaths
 from memsim.policy.leveling import make_leveler
 from memsim.tech.endurance import EnduranceModel, line_death_wear

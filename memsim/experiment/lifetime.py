@@ -30,23 +30,27 @@ pattern ("traffic" in the summary):
 Leveling at device scale.  Running a leveler on the modeled lines moves its
 registers ``S`` times too fast in device terms (Start-Gap's Start advances one
 line per ``(N + 1) psi`` writes), so a hot region a real device cannot move
-across in its lifetime would look leveled.  Plain Start-Gap is therefore
-evaluated at device size in closed form (:mod:`memsim.engine.device_wear`):
-the workload's share of writes per modeled line is counted over the window,
-each modeled line stands for ``S`` adjacent device lines, and the wear of every
-device line under the device's own Start and Gap registers is summed
-exactly; lifetime is found by bisection on the device writes (cost O(lines)
-per step, independent of the device size).  With one modeled line per device
-line it agrees with a replay to failure of the real leveler within 3%
-(tests/test_device_wear.py).  Randomized Start-Gap is evaluated at device
-size by a normal approximation of each line's window sum (null where the
-sum is too skewed for it; its error against a replay is measured in the
-same tests), Security Refresh by its steady state over many key rounds.
-``lifetime_leveling_scale`` says which way a run went: ``device`` (these
-three, spread traffic) or ``modeled`` (the attack patterns; none and
-bit rotation, which do not depend on the line count; region Start-Gap and
-hot/cold swap, which then give no estimate when a modeled line stands for
-more than one device line).
+across in its lifetime would look leveled.  Each leveler therefore
+evaluates itself at device size (:meth:`~memsim.policy.leveling.base.Leveler.device_model`,
+:mod:`memsim.policy.leveling.device_models`): the workload's share of
+writes per modeled line is counted over the window (or is the pattern's
+expected share), each modeled line stands for ``S`` adjacent device lines,
+and the leveler's model gives the device writes to end of life.  Plain
+Start-Gap sums the wear of every device line under the device's own Start
+and Gap registers exactly (bisection on the device writes, cost O(lines)
+per step, independent of the device size); region Start-Gap does so per
+region; randomized Start-Gap takes each line's window sum as normal (null
+where the sum is too skewed); Security Refresh is its steady state over many
+key rounds; hot/cold swap its mixed steady state with stuck regions (null
+in between).  With one modeled line per device line each agrees with a
+replay to failure of the real leveler (tests/test_device_wear.py, errors
+stated there and in each model).  ``lifetime_leveling_scale`` says which way
+a run went: ``device`` (a leveler with a device model, spread traffic) or
+``modeled`` (the attack patterns; bit rotation and the block-erase pool,
+which do not depend on the line count; randomized region Start-Gap, which
+gives no estimate when a modeled line stands for more than one device line;
+a model that gives none on a device of one modeled line per device line,
+where the modeled leveler is the device).
 
 The ideal lifetime is perfect leveling of full-line writes over the whole
 device, ``endurance_mean * capacity / write_rate``; schemes that program
@@ -78,44 +82,34 @@ import numpy as np
 
 from memsim import __version__
 from memsim.config import RunConfig
-from memsim.engine.device_wear import (
-    region_start_gap_device_lifetime,
-)
-from memsim.engine.wear import PoolLeveler, WearResult, run_wear
+from memsim.engine.wear import PoolLeveler, run_wear
 from memsim.errors import ConfigError
 from memsim.experiment.build import build_leveler
 from memsim.experiment.progress import track
 from memsim.experiment.run import resolve, simulate
 from memsim.experiment.wear_life import (
-    _PROFILE_WRITES,
-    _RATE_PROBE_REQUESTS,
     METHODS,
-    DeathLaw,
+    RATE_PROBE_REQUESTS,
     DeviceScale,
-    _device_rates,
-    _endurance,
-    _even_writes,
-    _ideal_years,
-    _pool_write_cells,
-    _randomized_start_gap_at_device,
-    _security_refresh_at_device,
-    _start_gap_at_device,
-    _years_fields,
-    device_deaths,
-    extrapolate,
+    device_scale_life,
+    endurance_model,
+    even_writes,
+    ideal_years,
     leveling_cycle_writes,
+    wear_tables,
+    write_stream,
+    years_fields,
+)
+from memsim.experiment.wear_profile import (
+    PROFILE_WRITES,
     path_profile,
+    pool_write_cells,
     profile_cells,
     rotated_profile,
     sample_profile,
-    wear_tables,
-    write_stream,
 )
-from memsim.metrics.death_law import capacity_share
-from memsim.metrics.lifetime import (
-    Lifetime,
-    lifetime_to_failure,
-)
+from memsim.metrics.death_law import DeathLaw, capacity_share, device_deaths, extrapolate
+from memsim.metrics.lifetime import lifetime_to_failure
 from memsim.metrics.result import RunResult
 from memsim.policy.erase import BlockPool
 from memsim.policy.leveling.base import Leveler
@@ -131,7 +125,7 @@ def _write_rate(cfg: RunConfig, write_rate_gbps: float | None) -> tuple[float, s
         return float(write_rate_gbps) * 1e9, "argument"
     if cfg.lifetime.write_rate_gbps > 0:
         return cfg.lifetime.write_rate_gbps * 1e9, "config"
-    n = min(cfg.workload.requests, _RATE_PROBE_REQUESTS)
+    n = min(cfg.workload.requests, RATE_PROBE_REQUESTS)
     s = simulate(cfg, workload__requests=n).summary
     if s["writes"] == 0 or s["simulated_ns"] <= 0:
         raise ConfigError("lifetime.write_rate_gbps", "0 and a timing run without writes",
@@ -213,29 +207,28 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
             return PoolLeveler(pool, cfg.array.line_bytes * 8)     # bulk init drives every data cell
         return build_leveler(cfg, named_stream(cfg.run.seed, "leveler"))
 
-    sample = sample_profile(cfg, named_stream(cfg.run.seed, "profile"), min(window, _PROFILE_WRITES))
+    sample = sample_profile(cfg, named_stream(cfg.run.seed, "profile"), min(window, PROFILE_WRITES))
     lv = new_leveler()
     profile = rotated_profile(path_profile(sample), sample.line_bits, lv)
     n_cells = profile_cells(sample)
     # The ledger counts cells; the death law's write equivalent is one write of `profile`.
     per_write = float(np.sum(np.broadcast_to(profile, (n_cells,))))
-    cells_per_write = _pool_write_cells(cfg, sample) if isinstance(lv, PoolLeveler) else per_write
+    cells_per_write = pool_write_cells(cfg, sample) if isinstance(lv, PoolLeveler) else per_write
     counting = {"cells_per_write": cells_per_write, "wear_unit": per_write}
     wear = run_wear(track(stream(), window, "writes", "wear window"), lv, max_user_writes=window, **counting)
-    law = DeathLaw(_endurance(cfg), n_cells, lt.ecp_entries, profile)
+    law = DeathLaw(endurance_model(cfg), n_cells, lt.ecp_entries, profile)
     dd = device_deaths(law, named_stream(cfg.run.seed, "endurance"), wear.line_wear / wear.user_writes,
                        scale.copies, scale.device_lines, lt.capacity_loss)
-    ideal_years = _ideal_years(cfg, scale, rate)
+    ideal = ideal_years(cfg, scale, rate)
     line_wear = wear.line_wear
     s: dict[str, Any] = {"lifetime_method": method, "write_rate_gbps": rate / 1e9,
                          "write_rate_source": source, "lifetime_traffic": scale.traffic,
                          "lifetime_line_scale": scale.line_scale, "device_lines": scale.device_lines,
-                         "lifetime_ideal_years": ideal_years}
-    even = _even_writes(law, line_wear, wear.user_writes, scale, lt.capacity_loss)
-    args = (scale, cfg.array.line_bytes, rate, ideal_years, dd.weight, even)
-    device_scale = ((lv.name in ("none", "start_gap", "randomized_start_gap", "security_refresh")
-                     or (lv.name == "region_start_gap" and lv.perm is None and lt.capacity_loss == 0))
-                    and scale.traffic == "spread")
+                         "lifetime_ideal_years": ideal}
+    even = even_writes(law, line_wear, wear.user_writes, scale, lt.capacity_loss)
+    args = (scale, cfg.array.line_bytes, rate, ideal, dd.weight, even)
+    model = lv.device_model() if scale.traffic == "spread" else None
+    device_scale = model is not None and model.modeled_applies(lt.capacity_loss)
     s["lifetime_leveling_scale"] = "device" if device_scale else "modeled"
     if not device_scale and not lv.scale_free() and scale.traffic == "spread" and scale.copies > 1:
         # The leveler ran on the modeled lines: its cycle is far shorter than
@@ -249,48 +242,25 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
     if cfg.workload.sizing == "device_lines":
         from memsim.experiment.fixed_lifetime import device_lines_fields
 
-        s.update(device_lines_fields(cfg, law, rate))
-        s["lifetime_ideal_years"] = ideal_years
+        s.update(device_lines_fields(cfg, lv, law, rate))
+        s["lifetime_ideal_years"] = ideal
         method = "none"      # the modeled wear below is kept for its statistics only
     if method in ("both", "extrapolated"):
-        if device_scale and lv.name == "none":
-            # No remapping: each line wears at its own expected share (no window noise).
-            rates = _device_rates(cfg, stream(), window)
-            nd = device_deaths(law, named_stream(cfg.run.seed, "endurance"), rates, scale.copies,
-                               scale.device_lines, lt.capacity_loss)
-            a = extrapolate(WearResult(rates, np.zeros_like(rates), 1, 0, np.zeros(1)), nd)
-            a.method = "device_scale"
-        elif device_scale and lv.name == "region_start_gap":
-            rates = _device_rates(cfg, stream(), window)
-            rd = device_deaths(law, named_stream(cfg.run.seed, "endurance"), rates, scale.copies,
-                               scale.device_lines, 0.0)
-            q, rem = divmod(cfg.array.lines, lv.regions)     # the device's regions span every line
-            sizes = np.where(np.arange(lv.regions) < rem, q + 1, q)
-            w = region_start_gap_device_lifetime(rates, sizes, rd.first[:, None], lv.psi, scale.copies)
-            t = scale.time_scale
-            a = Lifetime("device_scale", w / t, w / t, 1 if np.isfinite(w) else 0, int(scale.device_lines))
-        elif device_scale and lv.name == "security_refresh":
-            a = _security_refresh_at_device(cfg, lv, law, stream(), window, scale)
-            if np.isnan(a.end_writes) and scale.copies == 1:
-                a = extrapolate(wear, dd)       # the modeled leveler is the device
-                s["lifetime_leveling_scale"] = "modeled"
-        elif device_scale and lv.name == "randomized_start_gap":
-            a = _randomized_start_gap_at_device(cfg, lv, law, stream(), window, scale)
+        note = ""
+        if device_scale:
+            a, note = device_scale_life(cfg, model, law, stream(), window, scale)
             if np.isnan(a.end_writes) and scale.copies == 1:
                 # One modeled line per device line: the modeled leveler is the device.
                 a = extrapolate(wear, dd)
                 s["lifetime_leveling_scale"] = "modeled"
-        elif device_scale:
-            a = _start_gap_at_device(cfg, lv, law, stream(), window, scale)
         else:
             a = extrapolate(wear, dd)
-        s.update(_years_fields("lifetime", a, *args))
+        s.update(years_fields("lifetime", a, *args))
         if np.isnan(a.end_writes):
             for k in ("lifetime_years", "lifetime_first_failure_years", "lifetime_vs_ideal",
                       "lifetime_vs_even_wear"):
                 s[k] = None
-            s["lifetime_note"] = (f"no device-scale estimate for {lv.name}: its device-scale approximation "
-                                  f"does not hold for this traffic (see memsim.engine.device_wear)")
+            s["lifetime_note"] = f"no device-scale estimate for {lv.name}: {note}"
     replay_ok = lv.scale_free() or scale.copies == 1 or scale.traffic != "spread"
     if method in ("both", "run_to_failure") and not replay_ok:
         # The replay runs the leveler on the modeled lines: a cycle far too
@@ -314,7 +284,7 @@ def lifetime(config: str | Path | Mapping | RunConfig | None = None,
             b.end_writes, b.reached_end = float("inf"), False
         if not dd.exact:           # strata do not hold the weakest copies
             b.first_failure_writes = float("nan")
-        rep = _years_fields("lifetime_replay", b, *args)
+        rep = years_fields("lifetime_replay", b, *args)
         if method == "run_to_failure":
             s.update({k.replace("lifetime_replay", "lifetime"): v for k, v in rep.items()})
         s.update(rep)

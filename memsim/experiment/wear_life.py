@@ -1,8 +1,11 @@
 """Lifetime arithmetic shared by timing runs and the wear engine.
 
-The death law of lines under cell endurance and ECP, device scale, the
-write-scheme profile, the device-scale evaluation of the levelers and
-:func:`lifetime_fields` (a timing run's lifetime keys) live here;
+Device scale, the ideal and even-wear references, the summary fields of a
+lifetime (:func:`years_fields`), the device-scale evaluation through the
+leveler's own :class:`~memsim.policy.leveling.device_model.DeviceModel`
+(:func:`device_scale_life`), the workload's write stream and
+:func:`lifetime_fields` (a timing run's lifetime keys) live here; the
+write-scheme profile is in :mod:`memsim.experiment.wear_profile`;
 :mod:`memsim.experiment.lifetime` runs the wear engine and assembles
 ``memsim lifetime``.  This module imports no run orchestration, so
 :mod:`memsim.experiment.run` and :mod:`memsim.experiment.lifetime` can both
@@ -17,17 +20,10 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
-from scipy import stats
 
 from memsim.config import RunConfig
-from memsim.engine.device_wear import (
-    randomized_start_gap_device_lifetime,
-    security_refresh_device_rates,
-    security_refresh_round_load,
-    start_gap_device_lifetime,
-)
-from memsim.engine.wear import WearResult, rotate_profile, run_wear
-from memsim.experiment.build import build_path
+from memsim.engine.wear import WearResult, run_wear
+from memsim.experiment.wear_profile import path_profile, profile_cells, rotated_profile
 from memsim.metrics.death_law import DeathLaw, device_deaths, even_wear_writes, extrapolate
 from memsim.metrics.lifetime import (
     Lifetime,
@@ -35,7 +31,7 @@ from memsim.metrics.lifetime import (
     writes_to_years,
 )
 from memsim.policy.leveling.base import Leveler
-from memsim.policy.write.bits import popcount_rows
+from memsim.policy.leveling.device_model import DeviceLife, DeviceModel, ModeledInput
 from memsim.policy.writepath import WritePath
 from memsim.seeds import stream as named_stream
 from memsim.tech.endurance import EnduranceModel
@@ -46,102 +42,8 @@ from memsim.workload.device_traffic import folded_address
 from memsim.workload.synthetic import SyntheticSource
 
 METHODS = ("both", "extrapolated", "run_to_failure")
-_RATE_PROBE_REQUESTS = 10_000      # timing run that measures the write rate
-_PROFILE_LINES = 1024              # lines of the write-scheme profile pass
-_PROFILE_WRITES = 1 << 15
+RATE_PROBE_REQUESTS = 10_000       # timing run that measures the write rate
 _STREAM_CHUNK = 1 << 18
-_DISPERSION = 2.0                  # variance allowance of pooled_profile
-
-
-# ---------------------------------------------------------------- profile
-
-
-def pooled_profile(programs: np.ndarray, writes: float, groups: list[slice]) -> float | np.ndarray:
-    """Per-cell program probability from counts, pooled where spread is noise.
-
-    Within each group of cells (data cells, flag cells) the counts are
-    replaced by their mean when their spread is consistent with sampling
-    noise (chi-square dispersion test, p > 0.001; common practice), so a
-    short sample does not invent a most-worn cell.  The noise allowed is
-    twice the binomial variance: a differential write programs a cell when
-    its bit changes, and successive changes of one cell are correlated at
-    lag one, which inflates the variance of the count by
-    ``1 + (1 - 4s) / (1 - 2s)`` with ``s = p (1 - p)`` for independent bits
-    of probability ``p`` -- at most 2 (derived here).
-    """
-    q = np.asarray(programs, dtype=np.float64) / max(writes, 1.0)
-    for g in groups:
-        part = q[g]
-        if part.size == 0:
-            continue
-        m = part.mean()
-        if 0 < m < 1:
-            chi2 = ((part - m) ** 2).sum() * writes / (m * (1 - m))
-            if stats.chi2.sf(chi2 / _DISPERSION, part.size - 1) <= 1e-3:
-                continue
-        q[g] = m
-    return float(q[0]) if np.all(q == q[0]) else q
-
-
-def profile_cells(path: WritePath) -> int:
-    """Cells per line: data and flag cells; for multi-level cells, bits / bits per cell."""
-    if path.cell_wear is not None:
-        return int(path.cell_wear.shape[1])
-    if path.mlc is not None:
-        return path.mlc.cell.cells_per_line(path.line_bits)
-    return path.line_bits
-
-
-def path_profile(path: WritePath) -> float | np.ndarray:
-    """Per-cell program probability of one line write in ``path`` (moves included).
-
-    Multi-level cells are counted in pulses per cell (may exceed 1).
-    """
-    writes = float(path.line_writes.sum())
-    if path.cell_wear is None:
-        return float(path.line_cells.sum()) / max(writes, 1.0) / profile_cells(path)
-    bits = path.line_bits
-    return pooled_profile(path.bit_profile(), writes, [slice(0, bits), slice(bits, None)])
-
-
-def rotated_profile(profile: float | np.ndarray, line_bits: int, leveler: Leveler) -> float | np.ndarray:
-    """Average the data cells' profile over the bit offsets a rotating leveler cycles through."""
-    steady = getattr(leveler, "steady_offsets", None)
-    if steady is None or np.ndim(profile) == 0:
-        return profile
-    offs = steady()
-    q = np.array(profile, dtype=np.float64)
-    q[:line_bits] = rotate_profile(q[:line_bits], np.bincount(offs, minlength=line_bits)) / offs.size
-    return q
-
-
-def _pool_write_cells(cfg: RunConfig, sample: WritePath) -> float:
-    """Cells an out-of-place write into an initialized line programs, on average.
-
-    Only the bits that differ from the initialized state: the 0 bits of
-    all-SET blocks, the 1 bits of all-RESET blocks (the sample pass's stored
-    lines give the data's share of 1 bits).
-    """
-    ones = float(popcount_rows(sample.stored).mean())
-    return sample.line_bits - ones if cfg.erase.init_state == "set" else ones
-
-
-def sample_profile(cfg: RunConfig, rng: np.random.Generator, writes: int) -> WritePath:
-    """A short write-scheme pass: ``writes`` uniform writes over a few lines.
-
-    What a write programs depends on the data model and the write scheme,
-    not on which line it goes to, so the pass uses few lines, no leveler and
-    uniform addresses (fast, and independent of the address pattern).
-    """
-    n = min(cfg.footprint, _PROFILE_LINES)
-    small = cfg.model_copy(update={
-        "leveling": cfg.leveling.model_copy(update={"scheme": "none"}),
-        "workload": cfg.workload.model_copy(update={"footprint_lines": n}),
-    })
-    path = build_path(small, rng)
-    for lo in range(0, writes, 8192):
-        path.apply(rng.integers(0, n, size=min(8192, writes - lo), dtype=np.int64))
-    return path
 
 
 # ---------------------------------------------------------------- scale, caveats, tables
@@ -194,12 +96,12 @@ def wear_tables(line_wear: np.ndarray, bins: int = 64) -> dict[str, pd.DataFrame
     return {"wear_histogram": hist, "wear_cdf": cdf}
 
 
-def _endurance(cfg: RunConfig) -> EnduranceModel:
+def endurance_model(cfg: RunConfig) -> EnduranceModel:
     c = cfg.cell
     return EnduranceModel(c.endurance_mean, c.endurance_cov, c.endurance_dist)
 
 
-def _ideal_years(cfg: RunConfig, scale: DeviceScale, rate: float) -> float:
+def ideal_years(cfg: RunConfig, scale: DeviceScale, rate: float) -> float:
     """Perfectly spread full-line writes over the whole device: endurance x capacity / rate."""
     if rate <= 0:
         return float("inf")
@@ -208,7 +110,7 @@ def _ideal_years(cfg: RunConfig, scale: DeviceScale, rate: float) -> float:
                            line_scale=scale.line_scale)
 
 
-def _even_writes(law: DeathLaw, line_wear: np.ndarray, user_writes: float, scale: DeviceScale,
+def even_writes(law: DeathLaw, line_wear: np.ndarray, user_writes: float, scale: DeviceScale,
                  capacity_loss: float) -> float:
     """:func:`even_wear_writes` for the device lines the modeled wear falls on."""
     lines = line_wear.size * scale.copies
@@ -218,7 +120,7 @@ def _even_writes(law: DeathLaw, line_wear: np.ndarray, user_writes: float, scale
     return even_wear_writes(law, float(line_wear.mean()) / max(user_writes, 1), lines, needed)
 
 
-def _years_fields(prefix: str, life: Lifetime, scale: DeviceScale, line_bytes: int,
+def years_fields(prefix: str, life: Lifetime, scale: DeviceScale, line_bytes: int,
                   rate: float, ideal_years: float, weight: float,
                   even_writes: float = float("nan")) -> dict[str, Any]:
     def years(w: float) -> float:
@@ -314,14 +216,14 @@ def lifetime_fields(cfg: RunConfig, path: WritePath, write_bytes_per_s: float) -
     cells = path.ledger.line_cells()
     wear = cells / per_write if per_write > 0 else np.zeros_like(cells)
     mean = float(wear.mean()) if wear.size else 0.0
-    ideal_years = _ideal_years(cfg, scale, rate)
+    ideal = ideal_years(cfg, scale, rate)
     out: dict[str, Any] = {
         "write_rate_gbps": rate / 1e9,
         "write_rate_source": source,
         "lifetime_traffic": scale.traffic,
         "lifetime_years": float("inf"),
         "lifetime_first_failure_years": float("inf"),
-        "lifetime_ideal_years": ideal_years,
+        "lifetime_ideal_years": ideal,
         "lifetime_vs_ideal": float("nan"),
         "lifetime_vs_even_wear": float("nan"),
         "leveling_write_overhead": (path.move_writes + path.meta_writes) / max(user, 1),
@@ -341,8 +243,8 @@ def lifetime_fields(cfg: RunConfig, path: WritePath, write_bytes_per_s: float) -
     if cfg.workload.sizing == "device_lines":
         from memsim.experiment.fixed_lifetime import device_lines_fields
 
-        law = DeathLaw(_endurance(cfg), n_cells, cfg.lifetime.ecp_entries, profile)
-        out.update(device_lines_fields(cfg, law, rate))
+        law = DeathLaw(endurance_model(cfg), n_cells, cfg.lifetime.ecp_entries, profile)
+        out.update(device_lines_fields(cfg, lv, law, rate))
         return out
     note = _too_short(wear, out["lifetime_window_cycles"], cfg.lifetime.timing_max_noise)
     if not note and not lv.scale_free() and scale.traffic == "spread" and scale.copies > 1:
@@ -353,13 +255,13 @@ def lifetime_fields(cfg: RunConfig, path: WritePath, write_bytes_per_s: float) -
             out[k] = None
         out["lifetime_note"] = note
         return out
-    law = DeathLaw(_endurance(cfg), n_cells, cfg.lifetime.ecp_entries, profile)
+    law = DeathLaw(endurance_model(cfg), n_cells, cfg.lifetime.ecp_entries, profile)
     rng = named_stream(cfg.run.seed, "endurance")
     dd = device_deaths(law, rng, wear / user, scale.copies, scale.device_lines, cfg.lifetime.capacity_loss)
     result = WearResult(wear, np.zeros_like(wear), user, path.meta_writes, np.zeros(1))
     life = extrapolate(result, dd)
-    even = _even_writes(law, wear, user, scale, cfg.lifetime.capacity_loss)
-    f = _years_fields("lifetime", life, scale, cfg.array.line_bytes, rate, ideal_years, dd.weight, even)
+    even = even_writes(law, wear, user, scale, cfg.lifetime.capacity_loss)
+    f = years_fields("lifetime", life, scale, cfg.array.line_bytes, rate, ideal, dd.weight, even)
     f.pop("lifetime_dead_lines")
     out.update(f)
     return out
@@ -368,29 +270,7 @@ def lifetime_fields(cfg: RunConfig, path: WritePath, write_bytes_per_s: float) -
 # ---------------------------------------------------------------- wear-engine runs
 
 
-def _start_gap_at_device(cfg: RunConfig, lv: Leveler, law: DeathLaw, chunks: Iterator[np.ndarray],
-                         window: int, scale: DeviceScale) -> Lifetime:
-    """Estimate (a) for plain Start-Gap evaluated at device size (:mod:`memsim.engine.device_wear`).
-
-    The workload's share of writes per logical line is the synthetic
-    pattern's expected share (no sampling noise), or for a trace counted
-    over the window; lines outside the footprint get none (the device's
-    Start-Gap spans every line of the device).
-    """
-    rates = _device_rates(cfg, chunks, window)
-    dd = device_deaths(law, named_stream(cfg.run.seed, "endurance"), rates, scale.copies, scale.device_lines,
-                       cfg.lifetime.capacity_loss)
-    needed = dd.needed
-    end, first = start_gap_device_lifetime(rates, dd.death, dd.weight, needed, lv.psi, scale.copies)
-    if not dd.exact:
-        first = start_gap_device_lifetime(rates, dd.first[:, None], 1.0, 1, lv.psi, scale.copies)[1]
-    # Device writes -> modeled user writes (each stands for S device writes).
-    t = scale.time_scale
-    return Lifetime("device_scale", end / t, first / t, int(min(needed, dd.death.size)) if np.isfinite(end) else 0,
-                    int(scale.device_lines))
-
-
-def _device_rates(cfg: RunConfig, chunks: Iterator[np.ndarray], window: int,
+def device_rates(cfg: RunConfig, chunks: Iterator[np.ndarray], window: int,
                   ) -> np.ndarray:
     """Share of writes of every modeled logical line (expected, or counted for a trace)."""
     shares = None
@@ -405,40 +285,33 @@ def _device_rates(cfg: RunConfig, chunks: Iterator[np.ndarray], window: int,
     return rates
 
 
-def _security_refresh_at_device(cfg: RunConfig, lv: Leveler, law: DeathLaw, chunks: Iterator[np.ndarray],
-                                window: int, scale: DeviceScale) -> Lifetime:
-    """Estimate (a) for Security Refresh at device size (steady state over many key rounds).
+def device_scale_life(cfg: RunConfig, model: DeviceModel, law: DeathLaw, chunks: Iterator[np.ndarray],
+                      window: int, scale: DeviceScale) -> tuple[Lifetime, str]:
+    """Estimate (a) with the leveler evaluated at device size by its own ``model``.
 
-    NaN (no estimate) when one round can put more than 1% of the weakest
-    line's death wear on one physical line: then the steady state does not
-    hold before the first death.
+    The workload's share of writes per logical line is the synthetic
+    pattern's expected share (no sampling noise), or for a trace counted
+    over the window; lines outside the footprint get none.  Returns the
+    lifetime in modeled user writes (NaN: no estimate) and the model's note.
     """
-    rates = _device_rates(cfg, chunks, window)
-    blocks = min(lv.region_lines, cfg.array.lines)
-    steady = security_refresh_device_rates(rates, blocks, lv.interval)
-    dd = device_deaths(law, named_stream(cfg.run.seed, "endurance"), steady, scale.copies,
-                       scale.device_lines, cfg.lifetime.capacity_loss)
-    if security_refresh_round_load(rates, blocks, lv.interval) > 0.01 * float(dd.first.min()):
-        nan = float("nan")
-        return Lifetime("device_scale", nan, nan, 0, int(scale.device_lines))
-    life = extrapolate(WearResult(steady, np.zeros_like(steady), 1, 0, np.zeros(1)), dd)
-    life.method = "device_scale"
-    return life
-
-
-def _randomized_start_gap_at_device(cfg: RunConfig, lv: Leveler, law: DeathLaw,
-                                    chunks: Iterator[np.ndarray], window: int, scale: DeviceScale,
-                                    ) -> Lifetime:
-    """Estimate (a) for randomized Start-Gap at device size (an approximation,
-    :func:`memsim.engine.device_wear.randomized_start_gap_device_lifetime`)."""
-    rates = _device_rates(cfg, chunks, window)
-    needed = int(np.floor(cfg.lifetime.capacity_loss * scale.device_lines)) + 1
-    psi = lv.inner.psi
-    end = randomized_start_gap_device_lifetime(rates, law.cdf, needed, psi, scale.copies)
-    first = end if needed == 1 else randomized_start_gap_device_lifetime(rates, law.cdf, 1, psi, scale.copies)
+    rates = device_rates(cfg, chunks, window)
     t = scale.time_scale
-    return Lifetime("device_scale", end / t, first / t, needed if np.isfinite(end) else 0,
-                    int(scale.device_lines))
+
+    def deaths(r: np.ndarray, capacity_loss: float) -> Any:
+        return device_deaths(law, named_stream(cfg.run.seed, "endurance"), r, scale.copies, scale.device_lines,
+                             capacity_loss)
+
+    def steady(r: np.ndarray, dd: Any) -> DeviceLife:
+        life = extrapolate(WearResult(r, np.zeros_like(r), 1, 0, np.zeros(1)), dd)
+        # Per modeled user write -> device writes (each stands for t of them).
+        return DeviceLife(life.end_writes * t, life.first_failure_writes * t, life.dead_lines)
+
+    weak = float(law.ppf(np.array([1.0 / scale.device_lines]))[0])
+    inp = ModeledInput(rates, scale.copies, scale.device_lines, cfg.lifetime.capacity_loss, law.cdf, deaths, steady,
+                       weak)
+    life = model.modeled(inp)
+    return (Lifetime("device_scale", life.end_writes / t, life.first_writes / t, life.dead_lines,
+                     int(scale.device_lines)), life.note)
 
 
 def write_stream(cfg: RunConfig, chunk: int = _STREAM_CHUNK) -> Iterator[np.ndarray]:

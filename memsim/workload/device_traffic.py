@@ -76,7 +76,7 @@ class DeviceTraffic:
         return lo + np.floor(rng.random(n) * (self.bounds[j + 1] - lo)).astype(np.int64)
 
 
-def _runs(starts: np.ndarray, lengths: np.ndarray, rates: np.ndarray, d: int,
+def runs_of(starts: np.ndarray, lengths: np.ndarray, rates: np.ndarray, d: int,
           fill: float) -> tuple[np.ndarray, np.ndarray]:
     """Runs from sorted, disjoint (start, length, rate) pieces; gaps get ``fill``."""
     bounds, rate, at = [0], [], 0
@@ -128,13 +128,13 @@ def device_traffic(wl, device_lines: int, rng: np.random.Generator) -> DeviceTra
     hot, cold = wl.hot_share / h, (1.0 - wl.hot_share) / (d - h)
     if wl.hot_layout == "contiguous":
         lo = int(rng.integers(0, d - h + 1))
-        b, r = _runs(np.array([lo]), np.array([h]), np.array([hot]), d, cold)
+        b, r = runs_of(np.array([lo]), np.array([h]), np.array([hot]), d, cold)
         return DeviceTraffic(b, r, True)
     if h > _MAX_SCATTERED:
         # Places not kept: only the multiset of rates.
         return DeviceTraffic(np.array([0, h, d], dtype=np.int64), np.array([hot, cold]), False)
     places = np.sort(rng.choice(d, size=h, replace=False)) if d <= 1 << 24 else _distinct(rng, d, h)
-    b, r = _runs(places, np.ones(h, dtype=np.int64), np.full(h, hot), d, cold)
+    b, r = runs_of(places, np.ones(h, dtype=np.int64), np.full(h, hot), d, cold)
     return DeviceTraffic(b, r, True)
 
 
@@ -148,7 +148,7 @@ def _distinct(rng: np.random.Generator, d: int, h: int) -> np.ndarray:
 def trace_traffic(lines: np.ndarray, d: int) -> DeviceTraffic:
     """Write shares of a trace's device lines (``lines``: the device line of every write)."""
     q, n = np.unique(np.asarray(lines, dtype=np.int64), return_counts=True)
-    b, r = _runs(q, np.ones(q.size, dtype=np.int64), n / n.sum(), d, 0.0)
+    b, r = runs_of(q, np.ones(q.size, dtype=np.int64), n / n.sum(), d, 0.0)
     return DeviceTraffic(b, r, True)
 
 

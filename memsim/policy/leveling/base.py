@@ -16,6 +16,8 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from memsim.policy.leveling.device_model import DeviceModel
+
 
 @dataclass(frozen=True)
 class Moves:
@@ -114,6 +116,12 @@ class Leveler:
         maps (so its result on the modeled lines holds for the device).
         Remapping schemes are not: their cycles grow with the line count."""
         return False
+
+    def device_model(self) -> DeviceModel | None:
+        """The scheme evaluated at device size, for lifetime; None when it has no
+        device-scale evaluation (lifetime then uses the modeled lines, or gives
+        null with a note where they do not stand for the device)."""
+        return None
 
     def cycle_writes(self) -> float:
         """User writes for the scheme to move every line once through its cycle

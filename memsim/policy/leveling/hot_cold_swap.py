@@ -27,6 +27,8 @@ import numpy as np
 
 from memsim.policy.leveling._common import check_int
 from memsim.policy.leveling.base import Leveler, LevelResult, Moves
+from memsim.policy.leveling.device_model import DeviceModel
+from memsim.policy.leveling.device_models import HotColdSwapDevice
 
 
 class HotColdSwap(Leveler):
@@ -126,6 +128,9 @@ class HotColdSwap(Leveler):
         self.move_writes += len(moves)
         self.cost_writes += cost
         return LevelResult(phys=phys, moves=moves)
+
+    def device_model(self) -> DeviceModel:
+        return HotColdSwapDevice(self.region_lines, self.period)
 
     def state(self) -> dict:
         return {"scheme": self.name, "region_lines": self.region_lines,

@@ -5,6 +5,8 @@ import numpy as np
 
 from memsim.policy.leveling._common import check_int
 from memsim.policy.leveling.base import Leveler, LevelResult
+from memsim.policy.leveling.device_model import DeviceModel
+from memsim.policy.leveling.device_models import NoLevelingDevice
 
 
 class NoLeveling(Leveler):
@@ -23,6 +25,9 @@ class NoLeveling(Leveler):
 
     def scale_free(self) -> bool:
         return True
+
+    def device_model(self) -> DeviceModel:
+        return NoLevelingDevice()
 
     def state(self) -> dict:
         return {"scheme": self.name, **super().state()}

@@ -15,6 +15,8 @@ import numpy as np
 
 from memsim.policy.leveling._common import check_int
 from memsim.policy.leveling.base import Leveler, LevelResult
+from memsim.policy.leveling.device_model import DeviceModel
+from memsim.policy.leveling.device_models import RandomizedStartGapDevice
 from memsim.policy.leveling.randomizer import KeyedPermutation
 from memsim.policy.leveling.start_gap import StartGap
 
@@ -57,6 +59,9 @@ class RandomizedStartGap(Leveler):
         self.user_writes = self.inner.user_writes
         self.move_writes = self.inner.move_writes
         return res
+
+    def device_model(self) -> DeviceModel:
+        return RandomizedStartGapDevice(self.inner.psi)
 
     def cycle_writes(self) -> float:
         return self.inner.cycle_writes()

@@ -18,6 +18,8 @@ import numpy as np
 
 from memsim.policy.leveling._common import check_int, group_ranks, grouped_step_events
 from memsim.policy.leveling.base import Leveler, LevelResult, Moves
+from memsim.policy.leveling.device_model import DeviceModel
+from memsim.policy.leveling.device_models import RegionStartGapDevice
 from memsim.policy.leveling.randomizer import KeyedPermutation
 from memsim.policy.leveling.start_gap import sg_map, sg_move, sg_registers
 
@@ -97,6 +99,10 @@ class RegionStartGap(Leveler):
         self.user_writes += r.size
         self.move_writes += len(moves)
         return LevelResult(phys=phys, moves=moves)
+
+    def device_model(self) -> DeviceModel | None:
+        # Behind the randomizer the regions hold scattered lines: no device-scale form.
+        return RegionStartGapDevice(self.regions, self.psi) if self.perm is None else None
 
     def cycle_writes(self) -> float:
         """Every region's Start rotation: ``N (n_max + 1) psi`` user writes."""

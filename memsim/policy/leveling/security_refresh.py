@@ -36,6 +36,8 @@ import numpy as np
 from memsim.errors import ConfigError
 from memsim.policy.leveling._common import check_int, group_ranks, grouped_step_events, mix64
 from memsim.policy.leveling.base import Leveler, LevelResult, Moves
+from memsim.policy.leveling.device_model import DeviceModel
+from memsim.policy.leveling.device_models import SecurityRefreshDevice
 
 
 class SecurityRefresh(Leveler):
@@ -49,7 +51,8 @@ class SecurityRefresh(Leveler):
         Generator the key secret is drawn from.
     region_lines:
         Region size S, a power of two; default the smallest power of two
-        >= N (one region).
+        >= N (one region).  Lifetime at device size counts it in device
+        lines (:class:`~memsim.policy.leveling.device_models.SecurityRefreshDevice`).
     interval:
         Writes to a region between two advances of its refresh pointer.
 
@@ -65,6 +68,8 @@ class SecurityRefresh(Leveler):
         check_int("n_logical", n_logical, 1)
         super().__init__(n_logical, rng)
         N = self.n_logical
+        # As configured (None: one region); at device size a region is this many device lines.
+        self.region_lines_set = region_lines
         if region_lines is None:
             region_lines = 1 << (N - 1).bit_length()
         S = check_int("region_lines", region_lines, 1)
@@ -144,6 +149,9 @@ class SecurityRefresh(Leveler):
         self.user_writes += la.size
         self.move_writes += src.size
         return LevelResult(phys=phys, moves=Moves(src, dst, aft, 0))
+
+    def device_model(self) -> DeviceModel:
+        return SecurityRefreshDevice(self.region_lines_set, self.interval)
 
     def cycle_writes(self) -> float:
         """One key round of every region: ``n_physical * interval`` user writes."""

@@ -23,6 +23,8 @@ import numpy as np
 
 from memsim.policy.leveling._common import check_int, step_events, step_runs
 from memsim.policy.leveling.base import Leveler, LevelResult, Moves
+from memsim.policy.leveling.device_model import DeviceModel
+from memsim.policy.leveling.device_models import StartGapDevice
 
 
 def sg_registers(c: np.ndarray | int, n: np.ndarray | int) -> tuple[np.ndarray, np.ndarray]:
@@ -109,6 +111,9 @@ class StartGap(Leveler):
         self.gap_moves = int(vals[-1])
         self.move_writes += c.size
         return LevelResult(phys=phys, moves=Moves(src, dst, after, 0))
+
+    def device_model(self) -> DeviceModel:
+        return StartGapDevice(self.psi)
 
     def cycle_writes(self) -> float:
         """A full Start rotation: ``N (N + 1) psi`` user writes (Qureshi et al., MICRO 2009)."""

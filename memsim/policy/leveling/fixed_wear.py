@@ -26,15 +26,18 @@ Poisson), found by bisection.  Per leveler:
   after that the region's ``phi W`` writes are spread over ``K`` lines,
   ``phi G`` each -- the region moves one line per ``G`` writes, which on a
   large device is far slower than its lines wear;
+* ``region_start_gap`` (no randomizer): each region its own Start-Gap,
+  its gap moving every ``psi`` writes to the region;
 * ``randomized_start_gap``: the static randomizer scatters logical lines,
   so a physical line hosts ``K`` logical lines drawn without replacement
   from all ``D``.  Two share levels (a hot spot, uniform): the number of
   hot lines among them is hypergeometric and the wear follows exactly;
   otherwise the normal approximation of
-  :func:`memsim.engine.device_wear.randomized_start_gap_device_lifetime`
+  :func:`memsim.policy.leveling.device_wear.randomized_start_gap_device_lifetime`
   with its skewness guard (NaN = no estimate);
-* ``security_refresh`` with one region over the device (Seong et al.,
-  ISCA 2010): steady state, every line at ``(1 + 1 / interval) / D``;
+* ``security_refresh`` (Seong et al., ISCA 2010) with regions of
+  ``region_lines`` device lines (default one over the device): steady
+  state, every line of region ``g`` at ``(1 + 1 / interval) phi_g / R``;
   NaN when one key round can put more than 1% of a weak line's death wear
   on one physical line (then the steady state does not hold).
 """
@@ -45,7 +48,7 @@ from collections.abc import Callable
 import numpy as np
 from scipy import stats
 
-from memsim.engine.device_wear import first_crossing
+from memsim.policy.leveling.device_wear import first_crossing
 from memsim.workload.device_traffic import DeviceTraffic
 
 DeathCdf = Callable[[np.ndarray], np.ndarray]
@@ -74,7 +77,9 @@ def start_gap_wear(traffic: DeviceTraffic, q: np.ndarray, w: float, psi: int) ->
     g = (d + 1.0) * psi
     k = w / g
     q = np.asarray(q, dtype=np.float64)
-    return g * (traffic.cumulative(q + 1.0) - traffic.cumulative(q + 1.0 - k)) + k
+    # A line hosts each logical line for D psi of a cycle's (D + 1) psi writes
+    # (it is the gap for the other psi): negligible on a device, not on a region.
+    return g * d / (d + 1.0) * (traffic.cumulative(q + 1.0) - traffic.cumulative(q + 1.0 - k)) + k
 
 
 def start_gap_dead(traffic: DeviceTraffic, cdf: DeathCdf, w: float, psi: int) -> float:
@@ -103,6 +108,51 @@ def start_gap_writes(traffic: DeviceTraffic, cdf: DeathCdf, needed: int, psi: in
     if not traffic.layout_known:
         return float("nan")
     return _bisect(lambda w: start_gap_dead(traffic, cdf, w, psi), target_dead(needed), traffic.lines)
+
+
+def region_start_gap_writes(traffic: DeviceTraffic, cdf: DeathCdf, needed: int, regions: int, psi: int,
+                            max_kinds: int = 4096) -> float:
+    """Device writes to end of life under region Start-Gap (no randomizer); NaN: no estimate.
+
+    The ``D`` device lines are cut into ``regions`` runs of adjacent lines
+    (sizes differ by at most one, as in
+    :class:`~memsim.policy.leveling.region_start_gap.RegionStartGap`); region
+    ``g`` with share ``phi_g`` is a Start-Gap of its own whose gap moves
+    every ``psi`` writes *to the region*, so after ``W`` device writes it is
+    :func:`start_gap_dead` of the region's traffic after ``W phi_g`` region
+    writes (Qureshi et al., MICRO 2009).  Regions inside one run of the
+    traffic with the same size are alike and evaluated once.  NaN when the
+    layout is not known or the regions come in more than ``max_kinds`` kinds.
+    """
+    if not traffic.layout_known:
+        return float("nan")
+    d = traffic.lines
+    q, rem = divmod(d, int(regions))
+    g = np.arange(int(regions), dtype=np.int64)
+    lo = g * q + np.minimum(g, rem)
+    hi = lo + np.where(g < rem, q + 1, q)
+    b, v = traffic.bounds, traffic.rate
+    j_lo = np.searchsorted(b, lo, side="right") - 1
+    j_hi = np.searchsorted(b, hi - 1, side="right") - 1
+    inside = j_lo == j_hi
+    # One kind per (size, run) for regions inside a run, one per other region.
+    key = np.where(inside, (hi - lo) * (v.size + 1) + j_lo, -1 - g)
+    kinds, first, mult = np.unique(key, return_index=True, return_counts=True)
+    if kinds.size > max_kinds:
+        return float("nan")
+    parts = []
+    for i, m in zip(first.tolist(), mult.tolist()):
+        a, z = int(lo[i]), int(hi[i])
+        cut = np.unique(np.clip(b, a, z)) - a
+        sub_rate = v[np.searchsorted(b, cut[:-1] + a, side="right") - 1]
+        phi = float(np.dot(sub_rate, np.diff(cut)))
+        if phi > 0:
+            parts.append((DeviceTraffic(cut, sub_rate / phi, True), phi, float(m)))
+
+    def expected_dead(w: float) -> float:
+        return sum(m * start_gap_dead(t, cdf, w * phi, psi) for t, phi, m in parts)
+
+    return _bisect(expected_dead, target_dead(needed), d)
 
 
 def randomized_start_gap_writes(traffic: DeviceTraffic, cdf: DeathCdf, needed: int, psi: int,
@@ -140,7 +190,7 @@ def randomized_start_gap_writes(traffic: DeviceTraffic, cdf: DeathCdf, needed: i
 def _randomized_normal(traffic: DeviceTraffic, cdf: DeathCdf, needed: int, psi: int,
                        max_skew: float) -> float:
     """The normal approximation of
-    :func:`memsim.engine.device_wear.randomized_start_gap_device_lifetime`,
+    :func:`memsim.policy.leveling.device_wear.randomized_start_gap_device_lifetime`,
     with the moments of the device rates taken over the runs (weighted by
     their lengths); NaN where the window sum is too skewed for it."""
     d = float(traffic.lines)
@@ -172,10 +222,44 @@ def _randomized_normal(traffic: DeviceTraffic, cdf: DeathCdf, needed: int, psi: 
 
 
 def security_refresh_writes(traffic: DeviceTraffic, cdf: DeathCdf, needed: int, interval: int,
-                            weak_death: float) -> float:
-    """Device writes to end of life under Security Refresh over one device-wide region."""
+                            weak_death: float, region_lines: int | None = None) -> float:
+    """Device writes to end of life under Security Refresh with regions of ``region_lines`` device lines.
+
+    Region ``g`` (lines ``g R .. g R + R - 1``; default one region over the
+    device) takes the share ``phi_g`` of the writes; over many key rounds
+    each of its physical lines wears at ``phi_g / R (1 + 1 / interval)``
+    (Seong et al., ISCA 2010).  Regions inside one run of the traffic are
+    counted per run; only the regions holding a run boundary are evaluated
+    one by one, so the cost does not grow with the device.  NaN when one
+    round (``R interval`` writes to the region) can put more than 1% of a
+    weak line's death wear on one physical line: the hottest line of the
+    region takes ``v / phi_g`` of them.
+    """
     d = traffic.lines
-    if float(traffic.rate.max()) * d * interval > 0.01 * weak_death:
+    r = int(region_lines) if region_lines else 1 << (d - 1).bit_length()
+    b = traffic.bounds
+    v = traffic.rate
+    step = 1.0 + 1.0 / interval
+    # Whole regions inside run j: from ceil(b_j / R) to floor(b_{j+1} / R).
+    inside = np.maximum(b[1:] // r - (-(-b[:-1] // r)), 0).astype(np.float64)
+    # Regions holding a run boundary that is not a region boundary, and a last partial region.
+    inner = b[1:-1]
+    cut = np.unique(np.concatenate([inner[inner % r != 0] // r, [d // r] if d % r else []])).astype(np.int64)
+    lo = (cut * r).astype(np.float64)
+    hi = np.minimum((cut + 1) * r, d).astype(np.float64)
+    phi = traffic.cumulative(hi) - traffic.cumulative(lo)
+    # Hottest line of each cut region: the largest rate of the runs it overlaps.
+    j0 = np.searchsorted(b, lo, side="right") - 1
+    j1 = np.searchsorted(b, hi, side="left") - 1
+    hottest = np.array([v[a:z + 1].max() for a, z in zip(j0.tolist(), j1.tolist())]) if cut.size else np.zeros(0)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        load = np.where(phi > 0, hottest * r * interval / phi, 0.0)
+    if (inside.sum() > 0 and interval > 0.01 * weak_death) or (load.size and load.max() > 0.01 * weak_death):
         return float("nan")
-    rate = (1.0 + 1.0 / interval) / d
-    return _bisect(lambda w: d * float(cdf(np.array([w * rate]))[0]), target_dead(needed), d)
+    lines_inside = inside * r
+    rate_cut = phi / r * step
+
+    def expected_dead(w: float) -> float:
+        return float(np.dot(lines_inside, cdf(w * v * step)) + r * cdf(w * rate_cut).sum())
+
+    return _bisect(expected_dead, target_dead(needed), d)
