@@ -13,6 +13,12 @@ and replayed leaves the write path's draws exactly as they were.
 
 Names are registered in :data:`STREAMS`; an unknown name is a bug and
 raises ``ValueError``.
+
+Draws that belong to one event (the program-and-verify attempts of the cells
+of one write) come from :func:`keyed_uniforms`: a counter-based uniform of
+(salt, event key, index), so they do not depend on the order in which
+batches of events happen to be processed (the chunk size, or refreshes
+interleaved with writes).
 """
 from __future__ import annotations
 
@@ -53,4 +59,31 @@ def stream(seed: int, name: str, *index: int) -> np.random.Generator:
     return np.random.default_rng(stream_seed(seed, name, *index))
 
 
-__all__ = ["STREAMS", "stream", "stream_key", "stream_seed"]
+_GOLDEN = np.uint64(0x9E3779B97F4A7C15)
+_MIX1 = np.uint64(0xBF58476D1CE4E5B9)
+_MIX2 = np.uint64(0x94D049BB133111EB)
+
+
+def _mix64(z: np.ndarray) -> np.ndarray:
+    # The splitmix64 finalizer (Steele, Lea and Flood, OOPSLA 2014): a
+    # bijection on 64 bits whose output bits pass BigCrush when fed a counter.
+    z = (z ^ (z >> np.uint64(30))) * _MIX1
+    z = (z ^ (z >> np.uint64(27))) * _MIX2
+    return z ^ (z >> np.uint64(31))
+
+
+def keyed_uniforms(salt: int, keys: np.ndarray, index: np.ndarray) -> np.ndarray:
+    """Uniforms in (0, 1), one per element of ``keys`` and ``index`` (broadcast).
+
+    A pure function of (salt, key, index): the draw of cell ``index`` of
+    event ``key`` is the same whenever and in whatever batch it is made.
+    """
+    with np.errstate(over="ignore"):
+        k = np.asarray(keys).astype(np.uint64, copy=False)
+        i = np.asarray(index).astype(np.uint64, copy=False)
+        z = _mix64(np.uint64(salt & 0xFFFFFFFFFFFFFFFF) + k * _GOLDEN)
+        z = _mix64(z + (i + np.uint64(1)) * _GOLDEN)
+    return ((z >> np.uint64(11)).astype(np.float64) + 0.5) * 2.0 ** -53
+
+
+__all__ = ["STREAMS", "keyed_uniforms", "stream", "stream_key", "stream_seed"]

@@ -9,6 +9,7 @@ from scipy import stats
 
 from memsim import simulate
 from memsim.config import load_config
+from memsim.seeds import keyed_uniforms
 from memsim.tech.drift import DriftParams, line_rber, rber_mc, refresh_age
 from memsim.tech.mlc import MlcCell, bit_distance_matrix
 from memsim.tech.mlc_write import MlcProgrammer, cell_levels
@@ -189,3 +190,45 @@ def test_tri_level_runs_and_is_rejected_where_slc_is_required() -> None:
     with pytest.raises(ConfigError) as err:
         check_names(load_config({"cell": {"preset": "pcm_tri"}, "controller": {"hint_preset": True}}))
     assert err.value.where == "cell.tri_level"
+
+
+@pytest.mark.parametrize("model", ["geometric", "poisson"])
+def test_keyed_attempts_follow_the_attempt_law(model: str) -> None:
+    # Attempts drawn by inverting keyed uniforms (memsim.seeds.keyed_uniforms)
+    # against the law's pmf (scipy.stats.geom, scipy.stats.poisson shifted by
+    # one): chi-square over 64,000 cells of one level.
+    cell = make_cell(model, cap=64)
+    level = 1
+    m = cell.pv_mean_iterations[level]
+    u = keyed_uniforms(77, np.arange(4000)[:, None], np.arange(16)[None, :]).ravel()
+    att, ok = cell.attempts_from_uniforms(np.full(u.size, level), u)
+    law = stats.geom(1.0 / m) if model == "geometric" else stats.poisson(m - 1.0, loc=1)
+    k = np.arange(1, 13)
+    obs = np.array([(att == j).sum() for j in k] + [(att > 12).sum()])
+    exp = np.concatenate([law.pmf(k), [law.sf(12)]]) * att.size
+    keep = exp > 5
+    chi2 = stats.chisquare(obs[keep], exp[keep] * obs[keep].sum() / exp[keep].sum())
+    assert chi2.pvalue > 1e-3
+    assert ok.all()
+    # Through the programmer: mean attempts per programmed cell against m.
+    prog = MlcProgrammer(cell, budget_ua=3000.0, pulse_ua=300.0, rng=np.random.default_rng(5))
+    new = np.full((4000, 16), 0b01010101, np.uint8)       # every 2-bit cell at one level
+    cost = prog.cost(np.zeros_like(new), new, keys=np.arange(4000))
+    lv = int(cell_levels(new[:1], 2)[0, 0])
+    assert cost.pulses.sum() / cost.cells.sum() == pytest.approx(cell.pv_mean_iterations[lv], rel=0.03)
+
+
+def test_keyed_attempts_do_not_depend_on_batching() -> None:
+    # The same writes, keyed, cost the same cut into batches in any way.
+    cell = make_cell()
+    rng = np.random.default_rng(2)
+    old = rng.integers(0, 256, size=(300, 16), dtype=np.uint8)
+    new = rng.integers(0, 256, size=(300, 16), dtype=np.uint8)
+    keys = np.arange(1000, 1300)
+    whole = MlcProgrammer(cell, 3000.0, 300.0, np.random.default_rng(9)).cost(old, new, keys=keys)
+    cut = MlcProgrammer(cell, 3000.0, 300.0, np.random.default_rng(9))
+    parts = [cut.cost(old[a:b], new[a:b], keys=keys[a:b]) for a, b in ((200, 300), (0, 7), (7, 200))]
+    order = np.concatenate([np.arange(200, 300), np.arange(0, 7), np.arange(7, 200)])
+    got = np.empty(300)
+    got[order] = np.concatenate([p.program_ns for p in parts])
+    assert np.array_equal(got, whole.program_ns)

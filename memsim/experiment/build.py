@@ -16,7 +16,7 @@ from memsim.seeds import stream
 from memsim.tech.mlc_write import MlcProgrammer
 from memsim.tech.models import mlc_cell
 from memsim.tech.technology import uses_verify
-from memsim.workload.chunk import HINT, WRITE, Chunk
+from memsim.workload.chunk import HINT, WRITE, Chunk, rechunk
 from memsim.workload.content import DataModel
 from memsim.workload.device_traffic import folded_address
 from memsim.workload.mix import StreamMerge
@@ -153,34 +153,6 @@ class _Content:
         return parts[-1] if len(parts) == 2 else np.concatenate(parts)
 
 
-def _rechunk(chunks: Iterable[Chunk], size: int) -> Iterator[Chunk]:
-    """The same requests in chunks of exactly ``size`` (the last may be shorter).
-
-    The engines apply writes and look up reads chunk by chunk, so a
-    generator and the replay of its trace must cut the stream alike.
-    """
-    parts: list[Chunk] = []
-    held = 0
-    for ch in chunks:
-        if not parts and len(ch) == size:        # the usual case: nothing to do
-            yield ch
-            continue
-        if len(ch) == 0:
-            continue
-        parts.append(ch)
-        held += len(ch)
-        if held < size:
-            continue
-        whole = parts[0] if len(parts) == 1 else Chunk.concat(parts)
-        cut = held - held % size
-        for s in range(0, cut, size):
-            yield whole.take(slice(s, s + size))
-        rest = whole.take(slice(cut, None))
-        parts, held = ([rest] if len(rest) else []), len(rest)
-    if held:
-        yield parts[0] if len(parts) == 1 else Chunk.concat(parts)
-
-
 class RequestSource:
     """A run's request stream, as the engines consume it.
 
@@ -237,11 +209,11 @@ class RequestSource:
         else:
             # Cut again: the engines' results must not depend on how many
             # PCM requests each host chunk happened to give.
-            yield from _rechunk(self.cache.run(self._host()), self.chunk_requests)
+            yield from rechunk(self.cache.run(self._host()), self.chunk_requests)
 
     def _host(self) -> Iterator[Chunk]:
         try:
-            for ch in _rechunk(self.chunks, self.chunk_requests):
+            for ch in rechunk(self.chunks, self.chunk_requests):
                 if self.content is not None and ch.data is None:
                     w = np.flatnonzero(ch.op == WRITE)
                     data = np.zeros((len(ch), self.content.model.line_bytes), np.uint8)

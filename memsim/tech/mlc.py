@@ -411,6 +411,23 @@ class MlcCell:
             n = 1 + rng.poisson(m - 1.0)
         return np.minimum(n, self.pv_max_iterations).astype(np.int32), n <= self.pv_max_iterations
 
+    def attempts_from_uniforms(self, levels: np.ndarray | Sequence[int],
+                               u: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """As :meth:`sample_attempts`, by inversion of uniforms ``u`` in (0, 1)
+        (one per cell): the same distribution, drawn from keyed uniforms."""
+        lv = self._check_levels(levels)
+        m = np.asarray(self.pv_mean_iterations, dtype=np.float64)[lv]
+        if self.pv_model == "geometric":
+            # Inverse CDF of the geometric law on 1, 2, ... with success 1/m.
+            with np.errstate(divide="ignore"):
+                n = 1.0 + np.floor(np.log(u) / np.log1p(-1.0 / m))
+            n = np.where(m <= 1.0, 1.0, n)
+        else:
+            n = 1.0 + stats.poisson.ppf(u, m - 1.0)
+        n = np.minimum(n, np.iinfo(np.int32).max)
+        return (np.minimum(n, self.pv_max_iterations).astype(np.int32),
+                n <= self.pv_max_iterations)
+
     def sample_program_log10_r(
         self, levels: np.ndarray | Sequence[int], rng: np.random.Generator
     ) -> np.ndarray:

@@ -30,6 +30,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from memsim.seeds import keyed_uniforms
 from memsim.tech.mlc import TRI_WORD_LEVELS, MlcCell, gray_decode
 
 
@@ -76,6 +77,7 @@ class MlcProgrammer:
     def __init__(self, cell: MlcCell, budget_ua: float, pulse_ua: float,
                  rng: np.random.Generator) -> None:
         self.cell = cell
+        self.salt: int | None = None      # of the keyed draws, taken from rng at first use
         self.per_round = max(1, int(budget_ua // pulse_ua))
         self.pulse_ua = pulse_ua
         self.rng = rng
@@ -84,14 +86,30 @@ class MlcProgrammer:
         self.totals = {"lines": 0, "cells": 0, "unconverged": 0, "iterations": 0,
                        "program_ns": 0.0, "charge_ua_ns": 0.0, "peak_ua": 0.0}
 
-    def cost(self, old: np.ndarray, new: np.ndarray, full: bool = False) -> MlcCost:
+    def cost(self, old: np.ndarray, new: np.ndarray, full: bool = False,
+             keys: np.ndarray | None = None) -> MlcCost:
+        """Cost of writing lines ``old`` -> ``new``.
+
+        ``keys`` (one int per line, unique over the run) make each cell's
+        attempts a keyed draw (:func:`memsim.seeds.keyed_uniforms` of the
+        line's key and the cell's position), the same however writes are
+        batched; without keys the attempts come from the programmer's
+        generator in batch order.
+        """
         c = self.cell
         lv_new = self.levels(new)
         n = lv_new.shape[0]
         prog = np.ones_like(lv_new, dtype=bool) if full else (self.levels(old) != lv_new)
         iters = np.zeros(lv_new.shape, dtype=np.int64)
         unconv = np.zeros(lv_new.shape, dtype=bool)
-        iters[prog], conv = c.sample_attempts(lv_new[prog], self.rng)
+        if keys is None:
+            iters[prog], conv = c.sample_attempts(lv_new[prog], self.rng)
+        else:
+            if self.salt is None:
+                self.salt = int(self.rng.integers(0, 2 ** 63))
+            row, col = np.nonzero(prog)
+            u = keyed_uniforms(self.salt, np.asarray(keys, np.int64)[row], col)
+            iters[prog], conv = c.attempts_from_uniforms(lv_new[prog], u)
         unconv[prog] = ~conv
         energy = (iters * self.iter_pj[lv_new]).sum(axis=1)
         pulse = np.where(prog, self.pulse_ns[lv_new], 0.0)

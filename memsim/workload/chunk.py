@@ -1,6 +1,7 @@
 """A chunk of requests: a struct of numpy arrays, never one object per request."""
 from __future__ import annotations
 
+from collections.abc import Iterable, Iterator
 from dataclasses import dataclass
 
 import numpy as np
@@ -61,3 +62,32 @@ class Chunk:
             np.concatenate([c.line for c in chunks]),
             data,
         )
+
+
+def rechunk(chunks: Iterable[Chunk], size: int) -> Iterator[Chunk]:
+    """The same requests in chunks of exactly ``size`` (the last may be shorter).
+
+    The engines apply writes and look up reads chunk by chunk, so a
+    generator and the replay of its trace must cut the stream alike, and a
+    generator drawing in blocks of its own is cut to the run's chunk size.
+    """
+    parts: list[Chunk] = []
+    held = 0
+    for ch in chunks:
+        if not parts and len(ch) == size:        # the usual case: nothing to do
+            yield ch
+            continue
+        if len(ch) == 0:
+            continue
+        parts.append(ch)
+        held += len(ch)
+        if held < size:
+            continue
+        whole = parts[0] if len(parts) == 1 else Chunk.concat(parts)
+        cut = held - held % size
+        for s in range(0, cut, size):
+            yield whole.take(slice(s, s + size))
+        rest = whole.take(slice(cut, None))
+        parts, held = ([rest] if len(rest) else []), len(rest)
+    if held:
+        yield parts[0] if len(parts) == 1 else Chunk.concat(parts)

@@ -14,9 +14,13 @@ import numpy as np
 
 from memsim.errors import ConfigError
 from memsim.workload import attacks
-from memsim.workload.chunk import HINT, READ, WRITE, Chunk
+from memsim.workload.chunk import HINT, READ, WRITE, Chunk, rechunk
 
 AddressFn = Callable[[np.random.Generator, int, int], np.ndarray]
+
+#: Lines drawn at a time: the generator's own block, not the engine's chunk,
+#: so the stream does not depend on ``run.chunk_requests``.
+DRAW_BLOCK_LINES = 65536
 
 
 class AddressPattern:
@@ -224,10 +228,16 @@ class SyntheticSource:
             yield from self._requests()
 
     def _requests(self) -> Iterator[Chunk]:
+        # Draws are made in blocks of DRAW_BLOCK_LINES lines whatever the chunk
+        # size, so the stream (and every result) does not depend on
+        # ``run.chunk_requests``; the blocks are then cut into chunks.
+        return rechunk(self._blocks(), self.chunk)
+
+    def _blocks(self) -> Iterator[Chunk]:
         k = self.wl.size_lines
         left = self.wl.requests
         while left > 0:
-            n_req = min(-(-self.chunk // k), -(-left // k))
+            n_req = min(-(-DRAW_BLOCK_LINES // k), -(-left // k))
             t = self.arrivals.draw(self.rng, n_req)
             ops = np.where(self.rng.random(n_req) < self.wl.read_fraction, READ, WRITE)
             base = self.address.draw(self.rng, n_req)
