@@ -316,7 +316,7 @@ def _check_sizing(cfg: RunConfig, source: str, overridden: set[str]) -> None:
     if w.size_lines != 1 and w.pattern != "trace":
         raise ConfigError(_where(source, "workload.size_lines", overridden), str(w.size_lines),
                           "1 with workload.sizing = device_lines")
-    device = int(cfg.array.capacity_gib * 2**30 // cfg.array.line_bytes)
+    device = cfg.device_lines
     if w.pattern == "hotspot" and w.hot_lines >= device:
         raise ConfigError(_where(source, "workload.hot_lines", overridden), str(w.hot_lines),
                           f"fewer than the device's {device} lines (workload.sizing = device_lines)")

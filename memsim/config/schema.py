@@ -489,3 +489,8 @@ class RunConfig(Section):
     @property
     def footprint(self) -> int:
         return self.workload.footprint_lines or self.array.lines
+
+    @property
+    def device_lines(self) -> int:
+        """Lines of the whole device (``array.capacity_gib`` in lines of ``array.line_bytes``)."""
+        return int(self.array.capacity_gib * 2**30 // self.array.line_bytes)

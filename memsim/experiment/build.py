@@ -226,7 +226,7 @@ class RequestSource:
 
 
 def build_source(cfg: RunConfig, rng: np.random.Generator | None = None, *,
-                 content: bool = True, front: bool = True) -> RequestSource:
+                 content: bool = True, front: bool = True, fold: bool = True) -> RequestSource:
     """The run's request stream: the synthetic generator, or a trace for pattern ``trace``.
 
     Parameters
@@ -247,6 +247,11 @@ def build_source(cfg: RunConfig, rng: np.random.Generator | None = None, *,
         Put the DRAM cache (``cache.enabled``) in front: the chunks are then
         the PCM's requests.  ``False`` for the host's own stream (a trace
         made from the config).
+    fold:
+        For a workload sized in device lines (``workload.sizing``), fold the
+        device lines onto the modeled ones as the run does.  ``False``
+        yields the device lines themselves, as a trace of the device holds
+        them (a replay with ``device_lines`` folds them the same way).
 
     Raises
     ------
@@ -267,14 +272,15 @@ def build_source(cfg: RunConfig, rng: np.random.Generator | None = None, *,
             cache.keep_host = True        # per-stream keys need each host request's hit or miss
         return RequestSource(mix, cfg.run.chunk_requests, None if mix.has_data else filler, cache=cache, mix=mix)
     if w.pattern != "trace":
-        src = SyntheticSource(w, cfg.footprint, req_rng, cfg.run.chunk_requests,
-                              address=folded_address(cfg, cfg.footprint))
+        lines = cfg.footprint if fold or w.sizing != "device_lines" else cfg.device_lines
+        src = SyntheticSource(w, lines, req_rng, cfg.run.chunk_requests,
+                              address=folded_address(cfg, lines))
         return RequestSource(src, cfg.run.chunk_requests, filler, cache=cache)
     if not w.trace:
         raise ConfigError("workload.trace", "nothing",
                           "the path of a trace file when workload.pattern is 'trace'")
     device = w.sizing == "device_lines"
-    d = int(cfg.array.capacity_gib * 2**30 // cfg.array.line_bytes)
+    d = cfg.device_lines
     reader = read_trace(w.trace, chunk_size=cfg.run.chunk_requests, skip_bad=w.skip_bad,
                         line_bytes=cfg.array.line_bytes, footprint=d if device else cfg.footprint)
     if reader.has_data:          # reads the header now, outside the engine

@@ -31,7 +31,9 @@ def make_trace(spec: str | os.PathLike[str] | Mapping, out: str | os.PathLike[st
     The config's synthetic ``[workload]`` and ``run.seed`` decide the
     requests; ``out`` ends in .csv, .csv.gz or .parquet.  Replaying the trace
     with the same seed and memory settings gives the same run as the config.
-    With ``with_data`` every write's content is stored.
+    With ``with_data`` every write's content is stored.  A workload sized in
+    device lines (``workload.sizing = "device_lines"``) is written as device
+    lines, which a replay with the same sizing folds as the config's run does.
 
     Returns ``{"path", "requests", "reads", "writes", "hints", "with_data",
     "closed_loop", "streams"}`` (streams: how many ``[[streams]]`` were merged).
@@ -69,7 +71,7 @@ def make_trace(spec: str | os.PathLike[str] | Mapping, out: str | os.PathLike[st
             f"{w.arrival}, run.seed {cfg.run.seed}, line_bytes {cfg.array.line_bytes}; "
             + ("write content stored" if with_data else f"no write content (data model {w.data})"))
     counts = [0, 0, 0]
-    source = build_source(cfg, content=with_data, front=False)
+    source = build_source(cfg, content=with_data, front=False, fold=False)
     try:
         n = write_trace(path, _counted(source, counts), cfg.array.line_bytes, with_data, comment=note)
     except OSError as exc:

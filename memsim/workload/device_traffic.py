@@ -184,8 +184,12 @@ class FoldedAddress:
 
 
 def folded_address(cfg, modeled: int) -> FoldedAddress | None:
-    """The folded device traffic of ``cfg`` (a RunConfig), or None unless sized in device lines."""
+    """The folded device traffic of ``cfg`` (a RunConfig), or None unless sized in device lines.
+
+    With ``modeled`` equal to ``cfg.device_lines`` nothing is folded: the
+    addresses are the device lines themselves (what a trace holds).
+    """
     if cfg.workload.sizing != "device_lines":
         return None
-    d = int(cfg.array.capacity_gib * 2**30 // cfg.array.line_bytes)
+    d = cfg.device_lines
     return FoldedAddress(device_traffic(cfg.workload, d, layout_rng(cfg.run.seed)), modeled)
