@@ -95,6 +95,10 @@ configs = st.fixed_dictionaries({
     "cache.capacity_lines": st.sampled_from([16, 128]),
     "cache.ways": st.sampled_from([1, 4, 16]),
     "cache.replacement": st.sampled_from(["lru", "fifo"]),
+    "refresh.policy": st.sampled_from(["none", "none", "periodic", "drift", "scrub"]),
+    "refresh.interval_s": st.sampled_from([20.0, 600.0]),
+    "refresh.start": st.sampled_from(["spread", "fresh"]),
+    "refresh.scrub_errors": st.sampled_from([0, 3]),
 })
 
 
@@ -113,6 +117,10 @@ def _consistent(ov):
         ov["controller.hint_preset"] = False
     if ov["leveling.scheme"] != "none":
         ov["controller.hint_preset"] = False     # leveler moves would undo a pre-programmed line
+    if ov["refresh.policy"] != "none":
+        # 1e4 device lines per modeled line: refresh ages of a few ms of
+        # simulated time (with the default 16 GiB a refresh never comes).
+        ov["array.capacity_gib"] = 1e4 * ov["array.lines"] * 64 / 2**30
     return ov
 
 
@@ -123,6 +131,12 @@ def test_fast_engine_matches_reference(ov):
     assert not unsupported(cfg, build_path(cfg, np.random.default_rng(0)), plan_refresh(cfg))
     assert_engines_agree(ov)
 
+
+# 2-bit cells that drift, 1024 modeled lines standing for 1e4 device lines
+# each (as in test_refresh.py): refresh ages of a few ms of simulated time.
+DRIFTING = {"cell.preset": "pcm_mlc2", "array.lines": 1024, "array.banks": 8,
+            "array.capacity_gib": 1e4 * 1024 * 64 / 2**30, "workload.interval_ns": 500.0,
+            "workload.requests": 4000}
 
 FEATURES = {
     "plain": {},
@@ -144,6 +158,12 @@ FEATURES = {
     "dram cache, fifo, row order": {"cache.enabled": True, "cache.capacity_lines": 256,
                                     "cache.replacement": "fifo", "array.row_lines": 8,
                                     "array.mapping": "row", "controller.write_cancel": True},
+    "drift refresh, multi-level cells": {**DRIFTING, "refresh.policy": "drift"},
+    "periodic refresh": {**DRIFTING, "refresh.policy": "periodic", "refresh.interval_s": 20.0,
+                         "cell.preset": "pcm_slc"},
+    "scrub on read": {**DRIFTING, "refresh.policy": "scrub", "refresh.scrub_errors": 0},
+    "refresh, closed loop, power budget": {**DRIFTING, "refresh.policy": "drift", "workload.arrival": "closed",
+                                           "power.budget_ua": 100000.0, "controller.write_cancel": True},
     "everything": {"controller.write_cancel": True, "controller.write_pause": True,
                    "power.budget_ua": 30000.0, "array.row_lines": 8, "leveling.scheme": "start_gap",
                    "workload.arrival": "closed", "array.channels": 2},
@@ -160,13 +180,31 @@ def test_each_feature_matches_reference(extra):
         assert ref.pauses > 0
     if "power.budget_ua" in extra and len(extra) <= 3:
         assert ref.power_wait_ns > 0
+    if extra.get("refresh.policy", "none") != "none":
+        assert ref.refresh_busy_ns > 0
 
 
-# 2-bit cells that drift, 1024 modeled lines standing for 1e4 device lines
-# each (as in test_refresh.py): refresh ages of a few ms of simulated time.
-DRIFTING = {"cell.preset": "pcm_mlc2", "array.lines": 1024, "array.banks": 8,
-            "array.capacity_gib": 1e4 * 1024 * 64 / 2**30, "workload.interval_ns": 500.0,
-            "workload.requests": 4000}
+refresh_configs = st.fixed_dictionaries({
+    "run.seed": st.integers(0, 1000),
+    "refresh.policy": st.sampled_from(["periodic", "drift", "scrub"]),
+    "refresh.interval_s": st.sampled_from([20.0, 60.0]),
+    "refresh.start": st.sampled_from(["spread", "fresh"]),
+    "workload.read_fraction": st.sampled_from([0.5, 0.9, 1.0]),
+    "workload.arrival": st.sampled_from(["poisson", "closed"]),
+    "controller.write_cancel": st.booleans(),
+    # (Budgets or refresh intervals much tighter than these overload the
+    # banks: the refresh backlog then grows for as long as the run lasts.)
+    "power.budget_ua": st.sampled_from([0.0, 100000.0]),
+})
+
+
+@settings(max_examples=12, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(refresh_configs)
+def test_fast_engine_matches_reference_with_refresh(ov):
+    ov = {**DRIFTING, **ov}
+    ref, _ = assert_engines_agree(ov)
+    assert_summaries_agree(ov)
+
 
 def assert_summaries_agree(ov):
     fast = simulate(None, overrides={**ov, "run.engine": "fast"}).summary
@@ -178,6 +216,18 @@ def assert_summaries_agree(ov):
     return ref
 
 
+@pytest.mark.parametrize("extra", [
+    {"refresh.policy": "drift", "workload.read_fraction": 0.9, "refresh.start": "spread"},
+    {"refresh.policy": "periodic", "refresh.interval_s": 20.0, "refresh.start": "spread",
+     "workload.read_fraction": 1.0},
+    {"refresh.policy": "drift", "workload.arrival": "closed", "refresh.start": "spread"},
+    {"refresh.policy": "scrub", "refresh.scrub_errors": 0, "workload.read_fraction": 0.9},
+], ids=["drift", "periodic", "drift closed loop", "scrub"])
+def test_refresh_matches_reference(extra):
+    s = assert_summaries_agree({**DRIFTING, **extra})
+    assert s["refreshes"] > 0
+
+
 def test_summary_identical_and_names_engine():
     assert_summaries_agree({"workload.requests": 5000, "controller.write_cancel": True,
                             "power.budget_ua": 40000.0})
@@ -186,8 +236,6 @@ def test_summary_identical_and_names_engine():
 @pytest.mark.parametrize("extra, gap", [
     ({"write.scheme": "block_erase"}, "block erase"),
     ({"controller.hint_preset": True, "workload.hint_lead_ns": 500.0}, "hint"),
-    ({"refresh.policy": "scrub"}, "refresh"),
-    ({"refresh.policy": "periodic"}, "refresh"),
 ])
 def test_gap_falls_back_to_reference(extra, gap):
     cfg = load_config(None, {"workload.requests": 2000, **extra})

@@ -32,10 +32,6 @@ def unsupported(cfg, path: WritePath, plan: RefreshPlan | None) -> list[str]:
     w = cfg.workload
     if cfg.controller.hint_preset and (w.hint_lead_ns > 0 or w.pattern == "trace"):
         gaps.append("hint pre-programming with hints in the stream (controller.hint_preset)")
-    if plan is not None and plan.policy != "none":
-        # The kernel has the refresh scans and queues, but a generated
-        # config was seen to crash them: not enabled until that is found.
-        gaps.append(f"refresh policy {plan.policy}")
     return gaps
 
 
@@ -117,6 +113,7 @@ class FastEngine(TimingEngine):
         pi[K.P_SCAN_BASE] = nb + 1 + self.pool_level.size
         pi[K.P_CLOSED_REFRESH] = self.closed_refresh
         pi[K.P_URGENT] = URGENT
+        pi[K.P_SCRUB] = self.agent is not None and self.plan.policy == "scrub"
         scans = self.agent is not None and self.plan.active and np.isfinite(self.plan.scan_ns)
         pf[K.F_SCAN_NS] = self.plan.scan_ns if scans else 0.0
         # Process start order as in simpy: the source, bank 0, 1, ..., then
@@ -205,6 +202,9 @@ class FastEngine(TimingEngine):
             self._flush_handovers()
             if status == K.SCAN:
                 self._scan(int(ist[K.SCAN_B]))
+                continue
+            if status == K.SCRUB:
+                self.agent.on_read(int(ist[K.SCAN_B]), int(ist[K.SCRUB_PHYS]), float(fst[K.NOW]))
                 continue
             if status == K.NEED_SLOTS:
                 self._grow_slots()

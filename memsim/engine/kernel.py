@@ -23,15 +23,16 @@ from numba import njit
 SEQ, HSIZE, SRC_K, SRC_POS, SRC_RUN, IN_FLIGHT, SRC_DONE, SLOT_WAIT, FREE_TOP = range(9)
 CANCELS, PAUSES, CANC_CELLS, CLOG_N, USER_SET, USER_RESET, SRC_B, ERROR = range(9, 17)
 SET_CELLS, RESET_CELLS, READ_BITS, DONE_N = range(17, 21)
-REFRESH_RUNNING, SCAN_B, SRC_LOGGED, HLOG_N = range(21, 25)
-N_IST = 25
+REFRESH_RUNNING, SCAN_B, SRC_LOGGED, HLOG_N, SCRUB_PHYS = range(21, 26)
+N_IST = 26
 # ---- float state (fst)
 NOW, SRC_T, POWER_WAIT, CANC_PJ, REFRESH_BUSY = range(5)
 N_FST = 5
 # ---- integer parameters (pi)
 P_NB, P_RCAP, P_WCAP, P_HIGH, P_LOW, P_IDLEW, P_CLOSED, P_LIMIT, P_EXT, P_CANCEL, P_PAUSE, \
-    P_NPOOLS, P_CAS, P_PER_RESET, P_PER_SET, P_EXTRA_BITS, P_SCAN_BASE, P_CLOSED_REFRESH, P_URGENT = range(19)
-N_PI = 19
+    P_NPOOLS, P_CAS, P_PER_RESET, P_PER_SET, P_EXTRA_BITS, P_SCAN_BASE, P_CLOSED_REFRESH, P_URGENT, \
+    P_SCRUB = range(20)
+N_PI = 20
 # ---- float parameters (pf)
 F_BURST, F_READ, F_HIT, F_CANCEL_BEFORE, F_RESET_NS, F_SET_NS, F_POOL_CAP, F_RESET_UA, F_SET_UA, \
     F_SCAN_NS = range(10)
@@ -52,7 +53,7 @@ K_RUN, K_DONE, K_GOT, K_WDONE = range(4)
 # ---- resume points of the source
 S_NEXT, S_SLOT, S_HAND, S_AFTER_T, S_SPACECHK, S_SPACE = range(6)
 # ---- kernel status
-BLOCKED, NEED_CHUNK, NEED_SLOTS, FINISHED, FAILED, FLUSH, SCAN = range(7)
+BLOCKED, NEED_CHUNK, NEED_SLOTS, FINISHED, FAILED, FLUSH, SCAN, SCRUB = range(8)
 REFRESH = -2          # request field of a refresh operation (as in the reference)
 
 
@@ -326,6 +327,7 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
         b = pid
         kind = bi[b, B_KIND]
         top = True
+        scrub_phys = -1
         if kind == K_DONE:
             s = bi[b, B_SLOT]
             if si[s, SI_REQ] >= 0:
@@ -399,6 +401,8 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
             s = _q_pop(rq, rqh, rqn, b)
             bi[b, B_SLOT] = s
             bi[b, B_STREAK] = 0
+            if pi[P_SCRUB] != 0:
+                scrub_phys = si[s, SI_PHYS]
             row = si[s, SI_ROW]
             ch = si[s, SI_CH]
             start = now + (hit_ns if (row >= 0 and row == bi[b, B_ROW]) else read_ns)
@@ -425,6 +429,13 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
         bf[b, BF_BUSY] += dur
         bi[b, B_KIND] = K_DONE
         _push(ht, hs, hp, ist, now + dur, b)
+        if scrub_phys >= 0:
+            # Scrub-on-read decides in Python; what it queues waits for this
+            # bank's next turn, so deciding after the read is scheduled
+            # changes no event.
+            ist[SCAN_B] = b
+            ist[SCRUB_PHYS] = scrub_phys
+            return SCRUB
 
 
 @njit(cache=True)
