@@ -85,7 +85,12 @@ configs = st.fixed_dictionaries({
     "controller.cancel_before": st.sampled_from([0.3, 0.75, 1.0]),
     "controller.write_pause": st.booleans(),
     "controller.hint_preset": st.booleans(),
-    "write.scheme": st.sampled_from(["full_line", "data_comparison", "flip_n_write"]),
+    "write.scheme": st.sampled_from(["full_line", "data_comparison", "flip_n_write", "block_erase"]),
+    "erase.block_lines": st.sampled_from([2, 4, 8]),
+    "erase.init_state": st.sampled_from(["set", "reset"]),
+    "erase.victim": st.sampled_from(["greedy", "cost_benefit", "fifo"]),
+    "erase.idle_blocks": st.sampled_from([0, 4]),
+    "erase.fallback": st.sampled_from(["in_place", "wait"]),
     "leveling.scheme": st.sampled_from(["none", "start_gap"]),
     "leveling.psi": st.sampled_from([3, 50]),
     "power.budget_ua": st.sampled_from([0.0, 20000.0, 60000.0, 1e9]),
@@ -117,6 +122,11 @@ def _consistent(ov):
         ov["controller.hint_preset"] = False
     if ov["leveling.scheme"] != "none":
         ov["controller.hint_preset"] = False     # leveler moves would undo a pre-programmed line
+    if ov["write.scheme"] == "block_erase":
+        # The block pool remaps lines itself and models SLC; enough spare blocks
+        # for the smallest bank of 256 lines over 8 banks.
+        ov.update({"leveling.scheme": "none", "controller.hint_preset": False, "cell.preset": "pcm_slc",
+                   "erase.spare_fraction": 0.6})
     if ov["refresh.policy"] != "none":
         # 1e4 device lines per modeled line: refresh ages of a few ms of
         # simulated time (with the default 16 GiB a refresh never comes).
@@ -164,6 +174,16 @@ FEATURES = {
     "scrub on read": {**DRIFTING, "refresh.policy": "scrub", "refresh.scrub_errors": 0},
     "refresh, closed loop, power budget": {**DRIFTING, "refresh.policy": "drift", "workload.arrival": "closed",
                                            "power.budget_ua": 100000.0, "controller.write_cancel": True},
+    "block erase": {"write.scheme": "block_erase"},
+    "block erase, waits, reads": {"write.scheme": "block_erase", "erase.fallback": "wait", "erase.spare_fraction": 0.3,
+                                  "workload.read_fraction": 0.2, "workload.interval_ns": 30.0},
+    "block erase, power per channel": {"write.scheme": "block_erase", "power.budget_ua": 40000.0,
+                                       "power.scope": "channel", "array.channels": 2, "erase.spare_fraction": 0.3},
+    "block erase, closed loop, cancellation": {"write.scheme": "block_erase", "workload.arrival": "closed",
+                                               "controller.write_cancel": True, "erase.victim": "cost_benefit"},
+    "block erase, periodic refresh": {**DRIFTING, "cell.preset": "pcm_slc", "write.scheme": "block_erase",
+                                      "refresh.policy": "periodic", "refresh.interval_s": 20.0,
+                                      "erase.block_lines": 4},
     "everything": {"controller.write_cancel": True, "controller.write_pause": True,
                    "power.budget_ua": 30000.0, "array.row_lines": 8, "leveling.scheme": "start_gap",
                    "workload.arrival": "closed", "array.channels": 2},
@@ -182,6 +202,8 @@ def test_each_feature_matches_reference(extra):
         assert ref.power_wait_ns > 0
     if extra.get("refresh.policy", "none") != "none":
         assert ref.refresh_busy_ns > 0
+    if extra.get("write.scheme") == "block_erase":
+        assert ref.erase_pj > 0
 
 
 refresh_configs = st.fixed_dictionaries({
@@ -234,7 +256,6 @@ def test_summary_identical_and_names_engine():
 
 
 @pytest.mark.parametrize("extra, gap", [
-    ({"write.scheme": "block_erase"}, "block erase"),
     ({"controller.hint_preset": True, "workload.hint_lead_ns": 500.0}, "hint"),
 ])
 def test_gap_falls_back_to_reference(extra, gap):

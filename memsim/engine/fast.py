@@ -13,6 +13,7 @@ from collections.abc import Iterable
 import numpy as np
 
 from memsim.engine import kernel as K
+from memsim.engine import kernel_erase as KE
 from memsim.engine.ops import OpColumns, prepare_ops
 from memsim.engine.refresh_agent import URGENT, RefreshAgent
 from memsim.engine.stream import LatencyStream
@@ -27,8 +28,6 @@ ENGINES = ("fast", "reference")
 def unsupported(cfg, path: WritePath, plan: RefreshPlan | None) -> list[str]:
     """Features of this run the compiled kernel does not cover (empty: it runs)."""
     gaps = []
-    if path.scheme.out_of_place:
-        gaps.append("block erase (write.scheme block_erase)")
     w = cfg.workload
     if cfg.controller.hint_preset and (w.hint_lead_ns > 0 or w.pattern == "trace"):
         gaps.append("hint pre-programming with hints in the stream (controller.hint_preset)")
@@ -47,8 +46,9 @@ class FastEngine(TimingEngine):
         if gaps:
             raise ValueError("the fast engine does not cover: " + "; ".join(gaps))
         # No hint ever reaches this engine (see unsupported), so every user write
-        # takes its in-place cost: its wear is known when the write path applies it.
-        path.defer_user_wear = False
+        # takes its in-place cost: its wear is known when the write path applies it,
+        # except with block erase, where the erase pool places it at service.
+        path.defer_user_wear = self.out_of_place
 
     def _queue_hints(self, hints: Chunk) -> None:
         raise RuntimeError("the fast engine does not pre-program from hints; use the reference engine")
@@ -114,6 +114,12 @@ class FastEngine(TimingEngine):
         pi[K.P_CLOSED_REFRESH] = self.closed_refresh
         pi[K.P_URGENT] = URGENT
         pi[K.P_SCRUB] = self.agent is not None and self.plan.policy == "scrub"
+        pi[K.P_OOP] = self.erase is not None
+        self._gens: list = [None] * nb          # the erase agent's sub-process per bank
+        self._after_put = [-1] * nb             # pool whose put a bank waits on
+        if self.erase is not None:
+            for b in range(nb):
+                self.bi[b, K.B_WANT_CLEAN] = self.erase.wants_idle_clean(b)
         scans = self.agent is not None and self.plan.active and np.isfinite(self.plan.scan_ns)
         pf[K.F_SCAN_NS] = self.plan.scan_ns if scans else 0.0
         # Process start order as in simpy: the source, bank 0, 1, ..., then
@@ -171,7 +177,7 @@ class FastEngine(TimingEngine):
     def _columns(ops: OpColumns) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
         nr, nw = ops.n_reads, ops.w_req.size
         o = ops.order
-        c_f = np.zeros((nr + nw, 4))
+        c_f = np.zeros((nr + nw, 5))
         c_f[nr:, 0], c_f[nr:, 1], c_f[nr:, 2], c_f[nr:, 3] = ops.service, ops.current, ops.pre, ops.pj
         c_i = np.zeros((nr + nw, K.N_SI), np.int64)
         c_i[:nr, K.SI_READ] = 1
@@ -184,6 +190,9 @@ class FastEngine(TimingEngine):
         c_i[nr:, K.SI_BUS] = ops.uses_bus
         c_i[nr:, K.SI_RR], c_i[nr:, K.SI_SR], c_i[nr:, K.SI_CELLS] = ops.rr, ops.sr, ops.cells
         c_i[nr:, K.SI_NSET], c_i[nr:, K.SI_NRESET] = ops.n_set, ops.n_reset
+        if ops.alt is not None:
+            # The out-of-place form (block erase), taken if the pool places the write so.
+            c_f[nr:, 4], c_i[nr:, K.SI_OOP_SET], c_i[nr:, K.SI_OOP_RESET] = ops.alt
         bank = np.concatenate([ops.r_bank, ops.w_bank]).astype(np.int64)
         return (np.ascontiguousarray(ops.t, dtype=float), bank[o], np.ascontiguousarray(c_f[o]),
                 np.ascontiguousarray(c_i[o]))
@@ -205,6 +214,9 @@ class FastEngine(TimingEngine):
                 continue
             if status == K.SCRUB:
                 self.agent.on_read(int(ist[K.SCAN_B]), int(ist[K.SCRUB_PHYS]), float(fst[K.NOW]))
+                continue
+            if status in (K.BANK_PY, K.ERASE_WRITE, K.IDLE_CLEAN):
+                self._erase_step(status, int(ist[K.SCAN_B]))
                 continue
             if status == K.NEED_SLOTS:
                 self._grow_slots()
@@ -294,8 +306,8 @@ class FastEngine(TimingEngine):
             self.agent = RefreshAgent(self, self.plan, self.rng)
         self._alloc()
         nb = self.amap.total_banks
-        empty = (np.zeros(0), np.zeros(0, np.int64), np.zeros((0, 4)), np.zeros((0, K.N_SI), np.int64))
-        status = K.NEED_CHUNK
+        empty = (np.zeros(0), np.zeros(0, np.int64), np.zeros((0, 5)), np.zeros((0, K.N_SI), np.int64))
+        started = False
         for chunk in self.source:
             ops = prepare_ops(self, chunk)
             base = self._take_requests(ops)
@@ -305,6 +317,13 @@ class FastEngine(TimingEngine):
             # its first event in the heap).
             self.ist[K.SRC_POS] = 0
             status = self._call(self._columns(ops), base)
+            if status != K.NEED_CHUNK:
+                raise RuntimeError(f"fast engine: unexpected kernel status {status}")
+            started = True
+        if not started:
+            # No request reached the memory (a cache took them all): the
+            # source still takes its first step at time 0, before the banks.
+            status = self._call(empty, 0)
             if status != K.NEED_CHUNK:
                 raise RuntimeError(f"fast engine: unexpected kernel status {status}")
         K.source_done(self.pi, self.ist, self.fst, self.bi, self.ht, self.hs, self.hp)
@@ -340,7 +359,104 @@ class FastEngine(TimingEngine):
         if self.agent is not None:
             self.agent.finish(tot.simulated_ns)
             tot.refresh_pj = self.agent.energy_pj
+        if self.erase is not None:
+            tot.erase_pj = self.erase.energy_pj
         return tot
+
+    # ------------------------------------------------------------ block erase
+    def _erase_step(self, status: int, b: int) -> None:
+        """Run bank ``b``'s erase sub-process up to its next wait (or its end)."""
+        if status == K.ERASE_WRITE:
+            s = int(self.bi[b, K.B_SLOT])
+            self._gens[b] = (self.erase.prepare_write(b, int(self.si[s, K.SI_PHYS])), self._placed)
+        elif status == K.IDLE_CLEAN:
+            self._gens[b] = (self.erase.clean(b, yield_to_reads=True), self._cleaned)
+        elif self._after_put[b] >= 0:
+            # The put's event is processed: waiting gets first, then the bank.
+            KE.serve_pool(self._after_put[b], self.pool_level, self.pq, self.pqh, self.pqn, self.bf,
+                          self.ist, self.fst, self.ht, self.hs, self.hp)
+            self._after_put[b] = -1
+        gen, then = self._gens[b]
+        try:
+            cmd = gen.send(None)
+        except StopIteration as stop:
+            self._gens[b] = None
+            then(b, stop.value)
+        else:
+            self._issue(b, cmd)
+        self.bi[b, K.B_WANT_CLEAN] = self.erase.wants_idle_clean(b)
+
+    def _issue(self, b: int, cmd: tuple) -> None:
+        what, x = cmd
+        args = (self.ist, self.fst, self.ht, self.hs, self.hp)
+        if what == "hold":
+            KE.hold(b, x, self.bi, *args)
+        elif what == "take":
+            KE.take_current(self._pool_of(b), b, x, self.bi, self.bf, self.pool_level, self.pq, self.pqh,
+                            self.pqn, *args)
+        else:
+            p = self._pool_of(b)
+            if not KE.give_current(p, b, x, self.pf, self.bi, self.pool_level, *args):
+                raise RuntimeError("fast engine: a power-pool return had to wait (not modeled)")
+            self._after_put[b] = p
+
+    def _cleaned(self, b: int, _did: bool) -> None:
+        # The bank loop goes on at this time (no event between).
+        self.bi[b, K.B_KIND] = K.K_RUN
+        self.ist[K.RESUME] = b + 1
+
+    def _placed(self, b: int, placed: tuple[int, bool]) -> None:
+        """The erase pool placed bank ``b``'s write: its cost, then the write starts."""
+        phys, oop = placed
+        s = int(self.bi[b, K.B_SLOT])
+        sf, si = self.sf, self.si
+        if oop:
+            sf[s, K.SF_SERVICE], sf[s, K.SF_PRE] = sf[s, K.SF_OOP_NS], 0.0
+            si[s, K.SI_NSET], si[s, K.SI_NRESET] = si[s, K.SI_OOP_SET], si[s, K.SI_OOP_RESET]
+        self.path.ledger.add("user", self.erase.base[b] + phys, int(si[s, K.SI_NSET] + si[s, K.SI_NRESET]))
+        KE.start_write(b, self.pi, self.pf, self.ist, self.fst, self.ht, self.hs, self.hp, self.bi, self.bf,
+                       sf, si, self.ib, self.ibh, self.ibn, self.rqn, self.bus_free, self.pool_level,
+                       self.pq, self.pqh, self.pqn, self.clog)
+
+    # ---------------------------------------- the interface agents run on
+    @property
+    def now(self) -> float:
+        return float(self.fst[K.NOW])
+
+    def _pool_of(self, b: int) -> int:
+        # Global bank index = channel * banks + bank (as the reference).
+        return b // self.cfg.array.banks if int(self.pi[K.P_NPOOLS]) > 1 else 0
+
+    def current_limit(self, b: int) -> float | None:
+        return float(self.pf[K.F_POOL_CAP]) if int(self.pi[K.P_NPOOLS]) > 0 else None
+
+    def take_current(self, b: int, need: float) -> tuple:
+        return ("take", need)
+
+    def give_current(self, b: int, need: float) -> tuple:
+        return ("give", need)
+
+    def hold(self, dt: float) -> tuple:
+        return ("hold", dt)
+
+    def add_bank_busy(self, b: int, dt: float) -> None:
+        self.bf[b, K.BF_BUSY] += dt
+
+    def add_power_wait(self, dt: float) -> None:
+        self.fst[K.POWER_WAIT] += dt
+
+    def next_read(self, b: int, now: float, end: float) -> float | None:
+        if self.rqn[b] > 0:
+            return now
+        cap = self.ib.shape[1]
+        for k in range(int(self.ibn[b])):
+            e = self.ib[b, (self.ibh[b] + k) % cap]
+            t = float(self.sf[e, K.SF_T])
+            if t >= end:
+                return None
+            if self.si[e, K.SI_READ]:
+                return t
+        return None
 
 
 class _RefreshQueue:

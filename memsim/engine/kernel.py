@@ -23,37 +23,40 @@ from numba import njit
 SEQ, HSIZE, SRC_K, SRC_POS, SRC_RUN, IN_FLIGHT, SRC_DONE, SLOT_WAIT, FREE_TOP = range(9)
 CANCELS, PAUSES, CANC_CELLS, CLOG_N, USER_SET, USER_RESET, SRC_B, ERROR = range(9, 17)
 SET_CELLS, RESET_CELLS, READ_BITS, DONE_N = range(17, 21)
-REFRESH_RUNNING, SCAN_B, SRC_LOGGED, HLOG_N, SCRUB_PHYS = range(21, 26)
-N_IST = 26
+REFRESH_RUNNING, SCAN_B, SRC_LOGGED, HLOG_N, SCRUB_PHYS, RESUME = range(21, 27)
+N_IST = 27
 # ---- float state (fst)
 NOW, SRC_T, POWER_WAIT, CANC_PJ, REFRESH_BUSY = range(5)
 N_FST = 5
 # ---- integer parameters (pi)
 P_NB, P_RCAP, P_WCAP, P_HIGH, P_LOW, P_IDLEW, P_CLOSED, P_LIMIT, P_EXT, P_CANCEL, P_PAUSE, \
     P_NPOOLS, P_CAS, P_PER_RESET, P_PER_SET, P_EXTRA_BITS, P_SCAN_BASE, P_CLOSED_REFRESH, P_URGENT, \
-    P_SCRUB = range(20)
-N_PI = 20
+    P_SCRUB, P_OOP = range(21)
+N_PI = 21
 # ---- float parameters (pf)
 F_BURST, F_READ, F_HIT, F_CANCEL_BEFORE, F_RESET_NS, F_SET_NS, F_POOL_CAP, F_RESET_UA, F_SET_UA, \
     F_SCAN_NS = range(10)
 N_PF = 10
 # ---- per-bank integers (bi)
-B_KIND, B_SLOT, B_DRAIN, B_ROW, B_IDLE, B_SPACE, B_WDRAIN, B_AGAIN, B_DONE, B_STREAK, B_SCANNED = range(11)
-N_BI = 11
+B_KIND, B_SLOT, B_DRAIN, B_ROW, B_IDLE, B_SPACE, B_WDRAIN, B_AGAIN, B_DONE, B_STREAK, B_SCANNED, \
+    B_WANT_CLEAN = range(12)
+N_BI = 12
 # ---- per-bank floats (bf)
 BF_BUSY, BF_T0, BF_NEED = range(3)
 N_BF = 3
 # ---- slot fields
-SF_T, SF_SERVICE, SF_CUR, SF_PRE, SF_PJ = range(5)
-N_SF = 5
-SI_READ, SI_REQ, SI_CH, SI_ROW, SI_PHYS, SI_BUS, SI_RR, SI_SR, SI_CELLS, SI_NSET, SI_NRESET = range(11)
-N_SI = 11
+SF_T, SF_SERVICE, SF_CUR, SF_PRE, SF_PJ, SF_OOP_NS = range(6)
+N_SF = 6
+SI_READ, SI_REQ, SI_CH, SI_ROW, SI_PHYS, SI_BUS, SI_RR, SI_SR, SI_CELLS, SI_NSET, SI_NRESET, \
+    SI_OOP_SET, SI_OOP_RESET = range(13)
+N_SI = 13
 # ---- resume points of a bank
-K_RUN, K_DONE, K_GOT, K_WDONE = range(4)
+K_RUN, K_DONE, K_GOT, K_WDONE, K_PY = range(5)     # K_PY: a Python sub-process (erase agent) waits
 # ---- resume points of the source
 S_NEXT, S_SLOT, S_HAND, S_AFTER_T, S_SPACECHK, S_SPACE = range(6)
 # ---- kernel status
-BLOCKED, NEED_CHUNK, NEED_SLOTS, FINISHED, FAILED, FLUSH, SCAN, SCRUB = range(8)
+BLOCKED, NEED_CHUNK, NEED_SLOTS, FINISHED, FAILED, FLUSH, SCAN, SCRUB, BANK_PY, ERASE_WRITE, \
+    IDLE_CLEAN = range(11)
 REFRESH = -2          # request field of a refresh operation (as in the reference)
 
 
@@ -208,6 +211,10 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
             return FLUSH              # the caller takes the logs first (one entry per event at most)
         if ist[SRC_RUN] != 0:
             pid = src
+        elif ist[RESUME] != 0:
+            # A bank whose Python sub-process ended goes on at this time.
+            pid = ist[RESUME] - 1
+            ist[RESUME] = 0
         else:
             if ist[HSIZE] == 0:
                 return FINISHED
@@ -328,6 +335,9 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
         kind = bi[b, B_KIND]
         top = True
         scrub_phys = -1
+        if kind == K_PY:
+            ist[SCAN_B] = b
+            return BANK_PY
         if kind == K_DONE:
             s = bi[b, B_SLOT]
             if si[s, SI_REQ] >= 0:
@@ -387,6 +397,11 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
                 if bi[b, B_SPACE] != 0:
                     bi[b, B_SPACE] = 0
                     _push(ht, hs, hp, ist, now, src)
+                if pi[P_OOP] != 0:
+                    # Block erase: the erase agent places the write (and may clean first).
+                    bi[b, B_WDRAIN] = 1 if draining else 0
+                    ist[SCAN_B] = b
+                    return ERASE_WRITE
                 _write_start(b, s, draining, now, pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si,
                              ib, ibh, ibn, rqn, bus_free, pool_level, pq, pqh, pqn, clog)
                 continue
@@ -412,12 +427,18 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
             bus_free[ch] = start + burst
             dur = start + burst - now
         elif ibn[b] > 0:
+            if bi[b, B_WANT_CLEAN] != 0:
+                ist[SCAN_B] = b             # idle: the erase agent cleans a block
+                return IDLE_CLEAN
             # Idle until the next arrival (the source hands requests over
             # in time order: nothing can arrive before the inbox head).
             bi[b, B_KIND] = K_RUN
             _push(ht, hs, hp, ist, now + (sf[ib[b, ibh[b]], SF_T] - now), b)
             continue
         else:
+            if bi[b, B_WANT_CLEAN] != 0:
+                ist[SCAN_B] = b
+                return IDLE_CLEAN
             if ist[SRC_DONE] != 0 and wqn[b] == 0 and fqn[b] == 0 and ist[REFRESH_RUNNING] == 0:
                 bi[b, B_DONE] = 1
                 continue
@@ -457,6 +478,7 @@ def _fill(pos, t, base, c_f, c_i, sf, si, free, ist):
     sf[s, SF_CUR] = c_f[pos, 1]
     sf[s, SF_PRE] = c_f[pos, 2]
     sf[s, SF_PJ] = c_f[pos, 3]
+    sf[s, SF_OOP_NS] = c_f[pos, 4]
     for j in range(N_SI):
         si[s, j] = c_i[pos, j]
     if si[s, SI_REQ] >= 0:
