@@ -16,7 +16,7 @@ from hypothesis import strategies as st
 
 from memsim import simulate
 from memsim.config import load_config
-from memsim.engine.fast import FastEngine, make_engine, unsupported
+from memsim.engine.fast import ENGINES, FastEngine, make_engine, unsupported
 from memsim.engine.stream import LatencyStream
 from memsim.engine.timing import TimingEngine
 from memsim.experiment.build import build_path, build_source
@@ -85,6 +85,7 @@ configs = st.fixed_dictionaries({
     "controller.cancel_before": st.sampled_from([0.3, 0.75, 1.0]),
     "controller.write_pause": st.booleans(),
     "controller.hint_preset": st.booleans(),
+    "workload.hint_lead_ns": st.sampled_from([0.0, 0.0, 300.0, 2000.0]),
     "write.scheme": st.sampled_from(["full_line", "data_comparison", "flip_n_write", "block_erase"]),
     "erase.block_lines": st.sampled_from([2, 4, 8]),
     "erase.init_state": st.sampled_from(["set", "reset"]),
@@ -111,7 +112,9 @@ def _consistent(ov):
     # Drain thresholds inside the write queue (the config's own rule).
     ov["controller.drain_high"] = min(ov["controller.drain_high"], ov["controller.write_queue"])
     ov["controller.drain_low"] = min(ov["controller.drain_low"], ov["controller.drain_high"] - 1)
-    if ov["workload.arrival"] == "closed" or ov["controller.hint_preset"]:
+    if ov["workload.arrival"] == "closed":
+        ov["workload.hint_lead_ns"] = 0.0       # closed-loop arrival times are decided while running
+    if ov["workload.arrival"] == "closed" or ov["controller.hint_preset"] or ov["workload.hint_lead_ns"] > 0:
         ov["cache.enabled"] = False            # the cache acts on known arrival times, without hints
     if ov["array.row_lines"] == 0:
         ov["array.mapping"] = "line"           # row interleaving needs a row
@@ -184,6 +187,12 @@ FEATURES = {
     "block erase, periodic refresh": {**DRIFTING, "cell.preset": "pcm_slc", "write.scheme": "block_erase",
                                       "refresh.policy": "periodic", "refresh.interval_s": 20.0,
                                       "erase.block_lines": 4},
+    "hints in the stream": {"controller.hint_preset": True, "workload.hint_lead_ns": 500.0},
+    "hints, reads, writes held": {"controller.hint_preset": True, "workload.hint_lead_ns": 2000.0,
+                                  "workload.read_fraction": 0.3, "workload.arrival": "onoff",
+                                  "controller.idle_writes": False},
+    "hints, power budget": {"controller.hint_preset": True, "workload.hint_lead_ns": 300.0,
+                            "power.budget_ua": 40000.0, "array.channels": 2},
     "everything": {"controller.write_cancel": True, "controller.write_pause": True,
                    "power.budget_ua": 30000.0, "array.row_lines": 8, "leveling.scheme": "start_gap",
                    "workload.arrival": "closed", "array.channels": 2},
@@ -204,6 +213,8 @@ def test_each_feature_matches_reference(extra):
         assert ref.refresh_busy_ns > 0
     if extra.get("write.scheme") == "block_erase":
         assert ref.erase_pj > 0
+    if extra.get("workload.hint_lead_ns", 0) > 0:
+        assert ref.presets > 0 and ref.hint_hits > 0
 
 
 refresh_configs = st.fixed_dictionaries({
@@ -255,19 +266,41 @@ def test_summary_identical_and_names_engine():
                             "power.budget_ua": 40000.0})
 
 
-@pytest.mark.parametrize("extra, gap", [
-    ({"controller.hint_preset": True, "workload.hint_lead_ns": 500.0}, "hint"),
-])
-def test_gap_falls_back_to_reference(extra, gap):
+def test_trace_hints_match_reference(tmp_path):
+    # Hints from a trace: own times (some for lines never written, some late),
+    # with reads and writes around them and a chunk size that splits them.
+    from memsim.workload.chunk import HINT, READ, WRITE, Chunk
+    from memsim.workload.trace import write_trace
+    rng = np.random.default_rng(5)
+    n = 3000
+    t = np.cumsum(rng.choice([0.0, 20.0, 90.0, 400.0], n))
+    op = rng.choice(np.array([HINT, READ, WRITE], np.int8), n, p=[0.3, 0.4, 0.3])
+    line = rng.integers(0, 256, n)
+    path = tmp_path / "hinted.csv"
+    write_trace(path, [Chunk(t, op, line)])
+    ov = {"workload.pattern": "trace", "workload.trace": str(path), "array.lines": 1024, "array.banks": 2,
+          "controller.hint_preset": True, "run.chunk_requests": 1024, "power.budget_ua": 40000.0}
+    ref, _ = assert_engines_agree(ov)
+    assert ref.presets > 0 and ref.hint_hits > 0
+    assert_summaries_agree(ov)
+
+
+@pytest.mark.parametrize("extra", [
+    {"write.scheme": "block_erase"},
+    {"controller.hint_preset": True, "workload.hint_lead_ns": 500.0},
+    {"refresh.policy": "scrub"},
+    {"refresh.policy": "periodic"},
+], ids=["block erase", "hints", "scrub", "periodic refresh"])
+def test_former_gaps_run_on_the_fast_engine(extra):
+    # Nothing falls back to the reference any more; run.engine still chooses.
     cfg = load_config(None, {"workload.requests": 2000, **extra})
     rng = np.random.default_rng(cfg.run.seed)
     path = build_path(cfg, rng)
-    gaps = unsupported(cfg, path, plan_refresh(cfg))
-    assert any(gap in g for g in gaps)
-    eng = make_engine(cfg, build_source(cfg, rng), path, plan_refresh(cfg))
-    assert eng.name == "reference"
-    s = simulate(None, overrides={"workload.requests": 2000, **extra}).summary
-    assert s["engine"] == "reference"
+    assert unsupported(cfg, path, plan_refresh(cfg)) == []
+    assert make_engine(cfg, build_source(cfg, rng), path, plan_refresh(cfg)).name == "fast"
+    for engine in ENGINES:
+        s = simulate(None, overrides={"workload.requests": 2000, "run.engine": engine, **extra}).summary
+        assert s["engine"] == engine
 
 
 INACTIVE = {

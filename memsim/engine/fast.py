@@ -2,23 +2,30 @@
 
 Same controller and same results as the simpy reference
 (:class:`memsim.engine.timing.TimingEngine`), request for request; see
-:mod:`memsim.engine.kernel` for how the event order is kept.  Features the
-kernel does not cover yet are listed by :func:`unsupported`; a run that
-uses one goes to the reference engine (:func:`make_engine`).
+:mod:`memsim.engine.kernel` for how the event order is kept.  Decisions that
+live in Python objects (refresh scans and scrub draws, the erase pool's
+placement and cleaning, whether a hint pre-programmed a write's line) are
+taken between kernel events, at the moment the reference takes them.
+Features the kernel does not cover would be listed by :func:`unsupported`
+(none now); a run that uses one goes to the reference engine
+(:func:`make_engine`).
 """
 from __future__ import annotations
 
+from collections import deque
 from collections.abc import Iterable
 
 import numpy as np
 
 from memsim.engine import kernel as K
 from memsim.engine import kernel_erase as KE
+from memsim.engine import kernel_hints as KH
 from memsim.engine.ops import OpColumns, prepare_ops
 from memsim.engine.refresh_agent import URGENT, RefreshAgent
 from memsim.engine.stream import LatencyStream
 from memsim.engine.timing import TimingEngine, TimingTotals, price_energy
 from memsim.policy.refresh import RefreshPlan
+from memsim.policy.write.bits import popcount_rows
 from memsim.policy.writepath import WritePath
 from memsim.workload.chunk import Chunk
 
@@ -26,12 +33,12 @@ ENGINES = ("fast", "reference")
 
 
 def unsupported(cfg, path: WritePath, plan: RefreshPlan | None) -> list[str]:
-    """Features of this run the compiled kernel does not cover (empty: it runs)."""
-    gaps = []
-    w = cfg.workload
-    if cfg.controller.hint_preset and (w.hint_lead_ns > 0 or w.pattern == "trace"):
-        gaps.append("hint pre-programming with hints in the stream (controller.hint_preset)")
-    return gaps
+    """Features of this run the compiled kernel does not cover (empty: it runs).
+
+    Every feature of the reference is covered now; a feature added to the
+    reference before the kernel has it is named here, and the run falls back.
+    """
+    return []
 
 
 class FastEngine(TimingEngine):
@@ -45,13 +52,41 @@ class FastEngine(TimingEngine):
         gaps = unsupported(cfg, path, refresh)
         if gaps:
             raise ValueError("the fast engine does not cover: " + "; ".join(gaps))
-        # No hint ever reaches this engine (see unsupported), so every user write
-        # takes its in-place cost: its wear is known when the write path applies it,
-        # except with block erase, where the erase pool places it at service.
-        path.defer_user_wear = self.out_of_place
+        w = cfg.workload
+        # The bank decides a user write's form at service (Python between kernel
+        # events) with block erase, and where hints may have pre-programmed its
+        # line; otherwise every user write takes its in-place cost and its wear
+        # is known when the write path applies it.
+        self.place_at_service = self.out_of_place or (
+            self.hint_mode and (w.hint_lead_ns > 0 or w.pattern == "trace"))
+        path.defer_user_wear = self.place_at_service
 
     def _queue_hints(self, hints: Chunk) -> None:
-        raise RuntimeError("the fast engine does not pre-program from hints; use the reference engine")
+        """Hints of the chunk the source takes now: one pre-programming each, in its
+        bank's hint queue (same items as :meth:`TimingEngine._queue_hints`)."""
+        cell = self.cell
+        phys = self.path.leveler.lookup(hints.line)
+        ch, bank, _ = self.amap.locate(phys)
+        n_set = self.line_bits - popcount_rows(self.path.stored[phys])
+        per_set = cell.cells_per_round(self.round_budget_ua)[1]
+        service = cell.program_ns(n_set, np.zeros_like(n_set), self.round_budget_ua) + cell.read_ns
+        pj = n_set * cell.set_pj + self.line_bits * cell.read_pj
+        cur = np.minimum(n_set, per_set) * cell.set_ua
+        while int(self.ist[K.FREE_TOP]) < phys.size:
+            self._grow_slots()
+        self._ensure_heap(phys.size)
+        counts = np.bincount(bank, minlength=self.amap.total_banks)
+        if int((self.hqn + counts).max(initial=0)) > self.hqa.shape[1]:
+            self.hqa = _grown_queues(self.hqa, self.hqh, int((self.hqn + counts).max()), self.hqn)
+        now = float(self.fst[K.NOW])
+        for t, b, c_, s_, cu, e, n, p_ in zip(hints.time_ns.tolist(), bank.tolist(), ch.tolist(),
+                                              service.tolist(), cur.tolist(), pj.tolist(),
+                                              n_set.tolist(), phys.tolist()):
+            KH.queue_hint(b, t, c_, s_, cu, e, n, p_, self.sf, self.si, self.free, self.ist,
+                          self.hqa, self.hqh, self.hqn)
+            self.presets_due[b].append((p_, e, n))
+            # Wake an idle bank now (not at the hint's time), as the reference.
+            K.wake(b, now, self.bi, self.ist, self.fst, self.ht, self.hs, self.hp)
 
     # ------------------------------------------------------------ state
     def _alloc(self) -> None:
@@ -82,7 +117,9 @@ class FastEngine(TimingEngine):
         # One pending event per process, plus at most one current return per bank.
         # One pending event per process (source, banks, refresh scans), plus
         # at most one current return per bank.
-        n_events = 3 * nb + 2
+        # One pending event per process (source, banks, refresh scans, a bank's
+        # hint timer), a return per bank, and void hint timers (the heap grows).
+        n_events = 4 * nb + 16
         self.ht = np.zeros(n_events)
         self.hs = np.zeros(n_events, np.int64)
         self.hp = np.zeros(n_events, np.int64)
@@ -114,7 +151,11 @@ class FastEngine(TimingEngine):
         pi[K.P_CLOSED_REFRESH] = self.closed_refresh
         pi[K.P_URGENT] = URGENT
         pi[K.P_SCRUB] = self.agent is not None and self.plan.policy == "scrub"
-        pi[K.P_OOP] = self.erase is not None
+        pi[K.P_PLACE] = self.place_at_service
+        self.ist[K.HINT_BASE] = pi[K.P_SCAN_BASE] + nb
+        self.hqa = np.zeros((nb, 64), np.int64)            # hint queues (slots)
+        self.hqh, self.hqn = np.zeros(nb, np.int64), np.zeros(nb, np.int64)
+        self.presets_due: list[deque] = [deque() for _ in range(nb)]    # (line, pJ, cells) in queue order
         self._gens: list = [None] * nb          # the erase agent's sub-process per bank
         self._after_put = [-1] * nb             # pool whose put a bank waits on
         if self.erase is not None:
@@ -205,7 +246,8 @@ class FastEngine(TimingEngine):
                 self.sf, self.si, self.free, self.ib, self.ibh, self.ibn, self.rq, self.rqh, self.rqn,
                 self.wq, self.wqh, self.wqn, self.rpend, self.wpend, self.bus_free, self.pool_level,
                 self.pq, self.pqh, self.pqn, cols[0], cols[1], cols[2], cols[3], base,
-                self.done_f, self.done_i, self.clog, self.fqa, self.fqh, self.fqn, self.hlog)
+                self.done_f, self.done_i, self.clog, self.fqa, self.fqh, self.fqn, self.hlog,
+                self.hqa, self.hqh, self.hqn)
             self._flush_cancel_wear()
             self._flush_done()
             self._flush_handovers()
@@ -215,8 +257,14 @@ class FastEngine(TimingEngine):
             if status == K.SCRUB:
                 self.agent.on_read(int(ist[K.SCAN_B]), int(ist[K.SCRUB_PHYS]), float(fst[K.NOW]))
                 continue
-            if status in (K.BANK_PY, K.ERASE_WRITE, K.IDLE_CLEAN):
+            if status == K.PLACE_WRITE and self.erase is None:
+                self._hint_placed(int(ist[K.SCAN_B]))
+                continue
+            if status in (K.BANK_PY, K.PLACE_WRITE, K.IDLE_CLEAN):
                 self._erase_step(status, int(ist[K.SCAN_B]))
+                continue
+            if status == K.GROW_HEAP:
+                self._ensure_heap(0)
                 continue
             if status == K.NEED_SLOTS:
                 self._grow_slots()
@@ -233,7 +281,21 @@ class FastEngine(TimingEngine):
         if n > self.clog.shape[0]:
             raise RuntimeError("fast engine: cancellation log overflow")
         if n:
-            self.cancel_wear(self.clog[:n, 0], self.clog[:n, 1])
+            rows = self.clog[:n]
+            done = rows[:, 0] < 0
+            if done.any():
+                # Pre-programmings that ended (row: -1 - bank), in order.
+                tot, path = self.totals, self.path
+                for b in (-1 - rows[done, 0]).tolist():
+                    line, pj, cells = self.presets_due[b].popleft()
+                    self.preset[line] = True
+                    tot.presets += 1
+                    tot.preset_pj += pj
+                    tot.preset_cells += cells
+                    path.line_writes[line] += 1
+                    path.ledger.add("preset", line, cells)
+                rows = rows[~done]
+            self.cancel_wear(rows[:, 0], rows[:, 1])
             self.ist[K.CLOG_N] = 0
 
     def _flush_done(self) -> None:
@@ -286,14 +348,7 @@ class FastEngine(TimingEngine):
         K.wake(b, at, self.bi, self.ist, self.fst, self.ht, self.hs, self.hp)
 
     def _grow_refresh_queues(self, need: int) -> None:
-        cap = self.fqa.shape[1]
-        new_cap = max(2 * cap, need)
-        new = np.zeros((self.fqa.shape[0], new_cap), np.int64)
-        for b in range(self.fqa.shape[0]):
-            k = int(self.fqn[b])
-            new[b, :k] = self.fqa[b, (self.fqh[b] + np.arange(k)) % cap]
-        self.fqa = new
-        self.fqh[:] = 0
+        self.fqa = _grown_queues(self.fqa, self.fqh, need, self.fqn)
 
     def cancel_wear(self, phys: np.ndarray, wasted: np.ndarray) -> None:
         """Cells programmed by aborted writes (the reference counts them one by one)."""
@@ -366,7 +421,7 @@ class FastEngine(TimingEngine):
     # ------------------------------------------------------------ block erase
     def _erase_step(self, status: int, b: int) -> None:
         """Run bank ``b``'s erase sub-process up to its next wait (or its end)."""
-        if status == K.ERASE_WRITE:
+        if status == K.PLACE_WRITE:
             s = int(self.bi[b, K.B_SLOT])
             self._gens[b] = (self.erase.prepare_write(b, int(self.si[s, K.SI_PHYS])), self._placed)
         elif status == K.IDLE_CLEAN:
@@ -405,18 +460,41 @@ class FastEngine(TimingEngine):
         self.bi[b, K.B_KIND] = K.K_RUN
         self.ist[K.RESUME] = b + 1
 
+    def _hint_placed(self, b: int) -> None:
+        """Bank ``b``'s user write takes the fast form if a hint pre-programmed its line."""
+        s = int(self.bi[b, K.B_SLOT])
+        phys = int(self.si[s, K.SI_PHYS])
+        fast = self.preset.pop(phys, False)
+        self.totals.hint_hits += fast
+        self._start_placed(b, phys, fast)
+
     def _placed(self, b: int, placed: tuple[int, bool]) -> None:
-        """The erase pool placed bank ``b``'s write: its cost, then the write starts."""
         phys, oop = placed
+        self._start_placed(b, self.erase.base[b] + phys, oop)
+
+    def _start_placed(self, b: int, line: int, fast: bool) -> None:
+        """Bank ``b``'s write has its form (fast: out of place or into a pre-programmed
+        line): wear on ledger line ``line``, then the write starts."""
         s = int(self.bi[b, K.B_SLOT])
         sf, si = self.sf, self.si
-        if oop:
+        if fast:
             sf[s, K.SF_SERVICE], sf[s, K.SF_PRE] = sf[s, K.SF_OOP_NS], 0.0
             si[s, K.SI_NSET], si[s, K.SI_NRESET] = si[s, K.SI_OOP_SET], si[s, K.SI_OOP_RESET]
-        self.path.ledger.add("user", self.erase.base[b] + phys, int(si[s, K.SI_NSET] + si[s, K.SI_NRESET]))
+        self.path.ledger.add("user", line, int(si[s, K.SI_NSET] + si[s, K.SI_NRESET]))
         KE.start_write(b, self.pi, self.pf, self.ist, self.fst, self.ht, self.hs, self.hp, self.bi, self.bf,
                        sf, si, self.ib, self.ibh, self.ibn, self.rqn, self.bus_free, self.pool_level,
                        self.pq, self.pqh, self.pqn, self.clog)
+
+    def _ensure_heap(self, more: int) -> None:
+        nb = self.amap.total_banks
+        need = int(self.ist[K.HSIZE]) + more + 4 * nb + 16
+        if need > self.ht.size:
+            n, size = int(self.ist[K.HSIZE]), max(2 * self.ht.size, need)
+            for name in ("ht", "hs", "hp"):
+                old = getattr(self, name)
+                new = np.zeros(size, old.dtype)
+                new[:n] = old[:n]
+                setattr(self, name, new)
 
     # ---------------------------------------- the interface agents run on
     @property
@@ -457,6 +535,17 @@ class FastEngine(TimingEngine):
             if self.si[e, K.SI_READ]:
                 return t
         return None
+
+
+def _grown_queues(q: np.ndarray, qh: np.ndarray, need: int, qn: np.ndarray | None = None) -> np.ndarray:
+    """Per-bank ring queues with room for ``need`` entries, heads reset to 0 (``qh`` in place)."""
+    cap = q.shape[1]
+    new = np.zeros((q.shape[0], max(2 * cap, need)), np.int64)
+    for b in range(q.shape[0]):
+        k = cap if qn is None else int(qn[b])
+        new[b, :k] = q[b, (qh[b] + np.arange(k)) % cap]
+    qh[:] = 0
+    return new
 
 
 class _RefreshQueue:
