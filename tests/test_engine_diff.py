@@ -55,6 +55,9 @@ def assert_engines_agree(ov):
     for part in ("counts", "fs", "grid", "gstep"):      # streamed in the same completion order
         np.testing.assert_array_equal(getattr(fast.stream, part), getattr(ref.stream, part))
     np.testing.assert_array_equal(p_fast.line_cells, p_ref.line_cells)
+    # The wear ledger cause by cause (user, move, refresh, cancelled, preset, erase, meta).
+    np.testing.assert_array_equal(p_fast.ledger.cells, p_ref.ledger.cells)
+    np.testing.assert_array_equal(p_fast.ledger.unplaced, p_ref.ledger.unplaced)
     np.testing.assert_array_equal(p_fast.line_writes, p_ref.line_writes)
     return ref, fast
 
