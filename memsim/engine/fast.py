@@ -114,7 +114,6 @@ class FastEngine(AgentSteps, TimingEngine):
         self.pq = np.zeros((max(n_pools, 1), nb + 1), np.int64)
         self.pqh, self.pqn = np.zeros(max(n_pools, 1), np.int64), np.zeros(max(n_pools, 1), np.int64)
         self.clog = np.zeros((4096, 2), np.int64)
-        self.fq = [_RefreshQueue() for _ in range(nb)]     # the refresh agent appends here
         self.fqa = np.zeros((nb, 64), np.int64)             # the kernel's refresh queues
         self.fqh, self.fqn = np.zeros(nb, np.int64), np.zeros(nb, np.int64)
         self.hlog = np.zeros((4096, 2))
@@ -302,21 +301,20 @@ class FastEngine(AgentSteps, TimingEngine):
         self.agent.scan_once(b, now)
         K.push_event(self.ht, self.hs, self.hp, ist, now + self.plan.scan_ns, int(self.pi[K.P_SCAN_BASE]) + b)
 
-    def _wake(self, b: int, at: float) -> None:
-        """The refresh agent queued operations for bank ``b``: hand them over, wake it."""
-        items = self.fq[b].take()
-        if items:
-            ch, service, current, phys = (np.array(c) for c in zip(*((it[1], it[2], it[4], it[10])
-                                                                     for _, it in items)))
-            while int(self.ist[K.FREE_TOP]) < len(items):
+    def queue_refreshes(self, b: int, ch: np.ndarray, service: np.ndarray, current: np.ndarray,
+                        lines: np.ndarray, now: float) -> None:
+        """The refresh agent's operations for bank ``b`` into the kernel's refresh queue; wake it."""
+        n = lines.size
+        if n:
+            while int(self.ist[K.FREE_TOP]) < n:
                 self._grow_slots()
-            need = int(self.fqn[b]) + len(items)
+            need = int(self.fqn[b]) + n
             if need > self.fqa.shape[1]:
                 self._grow_refresh_queues(need)
-            K.queue_refreshes(b, ch.astype(np.int64), service.astype(float), current.astype(float),
-                              phys.astype(np.int64), self.sf, self.si, self.free, self.ist,
-                              self.fqa, self.fqh, self.fqn, float(self.fst[K.NOW]))
-        K.wake(b, at, self.bi, self.ist, self.fst, self.ht, self.hs, self.hp)
+            K.queue_refreshes(b, np.asarray(ch, np.int64), np.asarray(service, float),
+                              np.asarray(current, float), np.asarray(lines, np.int64), self.sf, self.si,
+                              self.free, self.ist, self.fqa, self.fqh, self.fqn, float(self.fst[K.NOW]))
+        K.wake(b, now, self.bi, self.ist, self.fst, self.ht, self.hs, self.hp)
 
     def _grow_refresh_queues(self, need: int) -> None:
         self.fqa = grown_queues(self.fqa, self.fqh, need, self.fqn)
@@ -388,23 +386,6 @@ class FastEngine(AgentSteps, TimingEngine):
         if self.erase is not None:
             tot.erase_pj = self.erase.energy_pj
         return tot
-
-class _RefreshQueue:
-    """Where the refresh agent appends operations; the engine moves them into the kernel."""
-
-    def __init__(self) -> None:
-        self.items: list = []
-
-    def append(self, item) -> None:
-        self.items.append(item)
-
-    def take(self) -> list:
-        items, self.items = self.items, []
-        return items
-
-    def __len__(self) -> int:
-        return len(self.items)
-
 
 def make_engine(cfg, source: Iterable[Chunk], path: WritePath, refresh: RefreshPlan | None = None,
                 rng: np.random.Generator | None = None) -> TimingEngine:

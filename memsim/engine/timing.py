@@ -29,7 +29,7 @@ import simpy
 
 from memsim.engine.erase_agent import EraseAgent
 from memsim.engine.ops import prepare_ops
-from memsim.engine.refresh_agent import URGENT, RefreshAgent
+from memsim.engine.refresh_agent import REFRESH, URGENT, RefreshAgent
 from memsim.engine.stream import LatencyStream
 from memsim.policy.refresh import RefreshPlan
 from memsim.policy.write.bits import popcount_rows
@@ -239,7 +239,7 @@ class TimingEngine:
         if self.agent is not None and self.plan.active and np.isfinite(self.plan.scan_ns):
             self.refresh_running = nb
             for b in range(nb):
-                env.process(self.agent.scan(b))
+                env.process(self._refresh_scan(b))
         # The run allocates millions of short-lived tuples and events that
         # reference counting frees; the cyclic collector would only rescan
         # the long-lived prepared chunks over and over.  Pause it for the run.
@@ -251,6 +251,28 @@ class TimingEngine:
             if was_enabled:
                 gc.enable()
         return self._finish()
+
+    def _refresh_scan(self, b: int):
+        """Simpy process: periodic or drift-triggered refresh scans of bank ``b``."""
+        env, scan_ns = self.env, self.plan.scan_ns
+        while True:
+            yield env.timeout(scan_ns)
+            if self.source_done and self.in_flight == 0:
+                break
+            self.agent.scan_once(b, env.now)
+        self.refresh_running -= 1
+        for bank in range(len(self.idle)):
+            self._wake(bank, env.now)
+
+    def queue_refreshes(self, b: int, ch: np.ndarray, service: np.ndarray, current: np.ndarray,
+                        lines: np.ndarray, now: float) -> None:
+        """Queue refresh operations (read, reprogram) of ``lines`` at bank ``b``; wake it."""
+        fq = self.fq[b]
+        # Same item layout as a write (see _prepare); no pause points, no
+        # energy (the refresh agent counts it).
+        for c_, s_, cur, ph in zip(ch.tolist(), service.tolist(), current.tolist(), lines.tolist()):
+            fq.append((None, (REFRESH, c_, s_, False, cur, 0.0, 0, 0, 0.0, 0, ph)))
+        self._wake(b, now)
 
     def _wake(self, b: int, at: float) -> None:
         """Wake bank ``b`` at time ``at`` if it sleeps with nothing to do."""
