@@ -85,9 +85,6 @@ class FastEngine(AgentSteps, TimingEngine):
         pf[K.F_RESET_UA], pf[K.F_SET_UA] = cell.reset_ua, cell.set_ua
         self.ist = np.zeros(K.N_IST, np.int64)
         self.fst = np.zeros(K.N_FST)
-        # One pending event per process, plus at most one current return per bank.
-        # One pending event per process (source, banks, refresh scans), plus
-        # at most one current return per bank.
         # One pending event per process (source, banks, refresh scans, a bank's
         # hint timer), a return per bank, and void hint timers (the heap grows).
         n_events = 4 * nb + 16
@@ -202,7 +199,8 @@ class FastEngine(AgentSteps, TimingEngine):
         c_i[nr:, K.SI_RR], c_i[nr:, K.SI_SR], c_i[nr:, K.SI_CELLS] = ops.rr, ops.sr, ops.cells
         c_i[nr:, K.SI_NSET], c_i[nr:, K.SI_NRESET] = ops.n_set, ops.n_reset
         if ops.alt is not None:
-            # The out-of-place form (block erase), taken if the pool places the write so.
+            # The fast form (out of place with block erase, or into a line a hint
+            # pre-programmed), taken if the bank finds it so at service.
             c_f[nr:, 4], c_i[nr:, K.SI_OOP_SET], c_i[nr:, K.SI_OOP_RESET] = ops.alt
         bank = np.concatenate([ops.r_bank, ops.w_bank]).astype(np.int64)
         return (np.ascontiguousarray(ops.t, dtype=float), bank[o], np.ascontiguousarray(c_f[o]),

@@ -217,8 +217,8 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
     burst, read_ns, hit_ns = pf[F_BURST], pf[F_READ], pf[F_HIT]
     n_entries = c_t.shape[0]
     while True:
-        if ist[CLOG_N] >= clog.shape[0] or ist[DONE_N] >= done_f.shape[0]:
-            return FLUSH              # the caller takes the logs first (one entry per event at most)
+        if ist[CLOG_N] + 1 >= clog.shape[0] or ist[DONE_N] >= done_f.shape[0]:
+            return FLUSH              # the caller takes the logs first (two entries per event at most)
         if ist[HSIZE] + 2 * nb + 8 > ht.shape[0]:
             return GROW_HEAP          # void hint timers stay in the heap until their time
         seq = -1
@@ -363,7 +363,6 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
         if kind == K_PY:
             ist[SCAN_B] = b
             return BANK_PY
-
         if kind == K_DONE:
             s = bi[b, B_SLOT]
             if si[s, SI_REQ] >= 0:
