@@ -20,7 +20,7 @@ from hypothesis import strategies as st
 
 from memsim import simulate
 from memsim.config import load_config
-from memsim.engine.fast import FastEngine, make_engine, unsupported
+from memsim.engine.fast import ENGINES, FastEngine, make_engine, unsupported
 from memsim.engine.stream import LatencyStream
 from memsim.engine.timing import TimingEngine
 from memsim.experiment.build import build_path, build_source
@@ -59,6 +59,9 @@ def assert_engines_agree(ov):
     for part in ("counts", "fs", "grid", "gstep"):      # streamed in the same completion order
         np.testing.assert_array_equal(getattr(fast.stream, part), getattr(ref.stream, part))
     np.testing.assert_array_equal(p_fast.line_cells, p_ref.line_cells)
+    # The wear ledger cause by cause (user, move, refresh, cancelled, preset, erase, meta).
+    np.testing.assert_array_equal(p_fast.ledger.cells, p_ref.ledger.cells)
+    np.testing.assert_array_equal(p_fast.ledger.unplaced, p_ref.ledger.unplaced)
     np.testing.assert_array_equal(p_fast.line_writes, p_ref.line_writes)
     return ref, fast
 
@@ -89,7 +92,13 @@ configs = st.fixed_dictionaries({
     "controller.cancel_before": st.sampled_from([0.3, 0.75, 1.0]),
     "controller.write_pause": st.booleans(),
     "controller.hint_preset": st.booleans(),
-    "write.scheme": st.sampled_from(["full_line", "data_comparison", "flip_n_write"]),
+    "workload.hint_lead_ns": st.sampled_from([0.0, 0.0, 300.0, 2000.0]),
+    "write.scheme": st.sampled_from(["full_line", "data_comparison", "flip_n_write", "block_erase"]),
+    "erase.block_lines": st.sampled_from([2, 4, 8]),
+    "erase.init_state": st.sampled_from(["set", "reset"]),
+    "erase.victim": st.sampled_from(["greedy", "cost_benefit", "fifo"]),
+    "erase.idle_blocks": st.sampled_from([0, 4]),
+    "erase.fallback": st.sampled_from(["in_place", "wait"]),
     "leveling.scheme": st.sampled_from(["none", "start_gap"]),
     "leveling.psi": st.sampled_from([3, 50]),
     "power.budget_ua": st.sampled_from([0.0, 20000.0, 60000.0, 1e9]),
@@ -99,6 +108,10 @@ configs = st.fixed_dictionaries({
     "cache.capacity_lines": st.sampled_from([16, 128]),
     "cache.ways": st.sampled_from([1, 4, 16]),
     "cache.replacement": st.sampled_from(["lru", "fifo"]),
+    "refresh.policy": st.sampled_from(["none", "none", "periodic", "drift", "scrub"]),
+    "refresh.interval_s": st.sampled_from([20.0, 600.0]),
+    "refresh.start": st.sampled_from(["spread", "fresh"]),
+    "refresh.scrub_errors": st.sampled_from([0, 3]),
 })
 
 
@@ -106,7 +119,9 @@ def _consistent(ov):
     # Drain thresholds inside the write queue (the config's own rule).
     ov["controller.drain_high"] = min(ov["controller.drain_high"], ov["controller.write_queue"])
     ov["controller.drain_low"] = min(ov["controller.drain_low"], ov["controller.drain_high"] - 1)
-    if ov["workload.arrival"] == "closed" or ov["controller.hint_preset"]:
+    if ov["workload.arrival"] == "closed":
+        ov["workload.hint_lead_ns"] = 0.0       # closed-loop arrival times are decided while running
+    if ov["workload.arrival"] == "closed" or ov["controller.hint_preset"] or ov["workload.hint_lead_ns"] > 0:
         ov["cache.enabled"] = False            # the cache acts on known arrival times, without hints
     if ov["array.row_lines"] == 0:
         ov["array.mapping"] = "line"           # row interleaving needs a row
@@ -117,6 +132,15 @@ def _consistent(ov):
         ov["controller.hint_preset"] = False
     if ov["leveling.scheme"] != "none":
         ov["controller.hint_preset"] = False     # leveler moves would undo a pre-programmed line
+    if ov["write.scheme"] == "block_erase":
+        # The block pool remaps lines itself and models SLC; enough spare blocks
+        # for the smallest bank of 256 lines over 8 banks.
+        ov.update({"leveling.scheme": "none", "controller.hint_preset": False, "cell.preset": "pcm_slc",
+                   "erase.spare_fraction": 0.6})
+    if ov["refresh.policy"] != "none":
+        # 1e4 device lines per modeled line: refresh ages of a few ms of
+        # simulated time (with the default 16 GiB a refresh never comes).
+        ov["array.capacity_gib"] = 1e4 * ov["array.lines"] * 64 / 2**30
     return ov
 
 
@@ -127,6 +151,12 @@ def test_fast_engine_matches_reference(ov):
     assert not unsupported(cfg, build_path(cfg, np.random.default_rng(0)), plan_refresh(cfg))
     assert_engines_agree(ov)
 
+
+# 2-bit cells that drift, 1024 modeled lines standing for 1e4 device lines
+# each (as in test_refresh.py): refresh ages of a few ms of simulated time.
+DRIFTING = {"cell.preset": "pcm_mlc2", "array.lines": 1024, "array.banks": 8,
+            "array.capacity_gib": 1e4 * 1024 * 64 / 2**30, "workload.interval_ns": 500.0,
+            "workload.requests": 4000}
 
 FEATURES = {
     "plain": {},
@@ -148,6 +178,28 @@ FEATURES = {
     "dram cache, fifo, row order": {"cache.enabled": True, "cache.capacity_lines": 256,
                                     "cache.replacement": "fifo", "array.row_lines": 8,
                                     "array.mapping": "row", "controller.write_cancel": True},
+    "drift refresh, multi-level cells": {**DRIFTING, "refresh.policy": "drift"},
+    "periodic refresh": {**DRIFTING, "refresh.policy": "periodic", "refresh.interval_s": 20.0,
+                         "cell.preset": "pcm_slc"},
+    "scrub on read": {**DRIFTING, "refresh.policy": "scrub", "refresh.scrub_errors": 0},
+    "refresh, closed loop, power budget": {**DRIFTING, "refresh.policy": "drift", "workload.arrival": "closed",
+                                           "power.budget_ua": 100000.0, "controller.write_cancel": True},
+    "block erase": {"write.scheme": "block_erase"},
+    "block erase, waits, reads": {"write.scheme": "block_erase", "erase.fallback": "wait", "erase.spare_fraction": 0.3,
+                                  "workload.read_fraction": 0.2, "workload.interval_ns": 30.0},
+    "block erase, power per channel": {"write.scheme": "block_erase", "power.budget_ua": 40000.0,
+                                       "power.scope": "channel", "array.channels": 2, "erase.spare_fraction": 0.3},
+    "block erase, closed loop, cancellation": {"write.scheme": "block_erase", "workload.arrival": "closed",
+                                               "controller.write_cancel": True, "erase.victim": "cost_benefit"},
+    "block erase, periodic refresh": {**DRIFTING, "cell.preset": "pcm_slc", "write.scheme": "block_erase",
+                                      "refresh.policy": "periodic", "refresh.interval_s": 20.0,
+                                      "erase.block_lines": 4},
+    "hints in the stream": {"controller.hint_preset": True, "workload.hint_lead_ns": 500.0},
+    "hints, reads, writes held": {"controller.hint_preset": True, "workload.hint_lead_ns": 2000.0,
+                                  "workload.read_fraction": 0.3, "workload.arrival": "onoff",
+                                  "controller.idle_writes": False},
+    "hints, power budget": {"controller.hint_preset": True, "workload.hint_lead_ns": 300.0,
+                            "power.budget_ua": 40000.0, "array.channels": 2},
     "everything": {"controller.write_cancel": True, "controller.write_pause": True,
                    "power.budget_ua": 30000.0, "array.row_lines": 8, "leveling.scheme": "start_gap",
                    "workload.arrival": "closed", "array.channels": 2},
@@ -164,13 +216,35 @@ def test_each_feature_matches_reference(extra):
         assert ref.pauses > 0
     if "power.budget_ua" in extra and len(extra) <= 3:
         assert ref.power_wait_ns > 0
+    if extra.get("refresh.policy", "none") != "none":
+        assert ref.refresh_busy_ns > 0
+    if extra.get("write.scheme") == "block_erase":
+        assert ref.erase_pj > 0
+    if extra.get("workload.hint_lead_ns", 0) > 0:
+        assert ref.presets > 0 and ref.hint_hits > 0
 
 
-# 2-bit cells that drift, 1024 modeled lines standing for 1e4 device lines
-# each (as in test_refresh.py): refresh ages of a few ms of simulated time.
-DRIFTING = {"cell.preset": "pcm_mlc2", "array.lines": 1024, "array.banks": 8,
-            "array.capacity_gib": 1e4 * 1024 * 64 / 2**30, "workload.interval_ns": 500.0,
-            "workload.requests": 4000}
+refresh_configs = st.fixed_dictionaries({
+    "run.seed": st.integers(0, 1000),
+    "refresh.policy": st.sampled_from(["periodic", "drift", "scrub"]),
+    "refresh.interval_s": st.sampled_from([20.0, 60.0]),
+    "refresh.start": st.sampled_from(["spread", "fresh"]),
+    "workload.read_fraction": st.sampled_from([0.5, 0.9, 1.0]),
+    "workload.arrival": st.sampled_from(["poisson", "closed"]),
+    "controller.write_cancel": st.booleans(),
+    # (Budgets or refresh intervals much tighter than these overload the
+    # banks: the refresh backlog then grows for as long as the run lasts.)
+    "power.budget_ua": st.sampled_from([0.0, 100000.0]),
+})
+
+
+@settings(max_examples=12, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(refresh_configs)
+def test_fast_engine_matches_reference_with_refresh(ov):
+    ov = {**DRIFTING, **ov}
+    ref, _ = assert_engines_agree(ov)
+    assert_summaries_agree(ov)
+
 
 def assert_summaries_agree(ov):
     fast = simulate(None, overrides={**ov, "run.engine": "fast"}).summary
@@ -182,27 +256,58 @@ def assert_summaries_agree(ov):
     return ref
 
 
+@pytest.mark.parametrize("extra", [
+    {"refresh.policy": "drift", "workload.read_fraction": 0.9, "refresh.start": "spread"},
+    {"refresh.policy": "periodic", "refresh.interval_s": 20.0, "refresh.start": "spread",
+     "workload.read_fraction": 1.0},
+    {"refresh.policy": "drift", "workload.arrival": "closed", "refresh.start": "spread"},
+    {"refresh.policy": "scrub", "refresh.scrub_errors": 0, "workload.read_fraction": 0.9},
+], ids=["drift", "periodic", "drift closed loop", "scrub"])
+def test_refresh_matches_reference(extra):
+    s = assert_summaries_agree({**DRIFTING, **extra})
+    assert s["refreshes"] > 0
+
+
 def test_summary_identical_and_names_engine():
     assert_summaries_agree({"workload.requests": 5000, "controller.write_cancel": True,
                             "power.budget_ua": 40000.0})
 
 
-@pytest.mark.parametrize("extra, gap", [
-    ({"write.scheme": "block_erase"}, "block erase"),
-    ({"controller.hint_preset": True, "workload.hint_lead_ns": 500.0}, "hint"),
-    ({"refresh.policy": "scrub"}, "refresh"),
-    ({"refresh.policy": "periodic"}, "refresh"),
-])
-def test_gap_falls_back_to_reference(extra, gap):
+def test_trace_hints_match_reference(tmp_path):
+    # Hints from a trace: own times (some for lines never written, some late),
+    # with reads and writes around them and a chunk size that splits them.
+    from memsim.workload.chunk import HINT, READ, WRITE, Chunk
+    from memsim.workload.trace import write_trace
+    rng = np.random.default_rng(5)
+    n = 3000
+    t = np.cumsum(rng.choice([0.0, 20.0, 90.0, 400.0], n))
+    op = rng.choice(np.array([HINT, READ, WRITE], np.int8), n, p=[0.3, 0.4, 0.3])
+    line = rng.integers(0, 256, n)
+    path = tmp_path / "hinted.csv"
+    write_trace(path, [Chunk(t, op, line)])
+    ov = {"workload.pattern": "trace", "workload.trace": str(path), "array.lines": 1024, "array.banks": 2,
+          "controller.hint_preset": True, "run.chunk_requests": 1024, "power.budget_ua": 40000.0}
+    ref, _ = assert_engines_agree(ov)
+    assert ref.presets > 0 and ref.hint_hits > 0
+    assert_summaries_agree(ov)
+
+
+@pytest.mark.parametrize("extra", [
+    {"write.scheme": "block_erase"},
+    {"controller.hint_preset": True, "workload.hint_lead_ns": 500.0},
+    {"refresh.policy": "scrub"},
+    {"refresh.policy": "periodic"},
+], ids=["block erase", "hints", "scrub", "periodic refresh"])
+def test_former_gaps_run_on_the_fast_engine(extra):
+    # Nothing falls back to the reference any more; run.engine still chooses.
     cfg = load_config(None, {"workload.requests": 2000, **extra})
     rng = np.random.default_rng(cfg.run.seed)
     path = build_path(cfg, rng)
-    gaps = unsupported(cfg, path, plan_refresh(cfg))
-    assert any(gap in g for g in gaps)
-    eng = make_engine(cfg, build_source(cfg, rng), path, plan_refresh(cfg))
-    assert eng.name == "reference"
-    s = simulate(None, overrides={"workload.requests": 2000, **extra}).summary
-    assert s["engine"] == "reference"
+    assert unsupported(cfg, path, plan_refresh(cfg)) == []
+    assert make_engine(cfg, build_source(cfg, rng), path, plan_refresh(cfg)).name == "fast"
+    for engine in ENGINES:
+        s = simulate(None, overrides={"workload.requests": 2000, "run.engine": engine, **extra}).summary
+        assert s["engine"] == engine
 
 
 INACTIVE = {

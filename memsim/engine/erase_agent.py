@@ -17,6 +17,11 @@ bank cleans in idle time while fewer than ``erase.idle_blocks`` blocks are
 free, and in the foreground when the pool falls below ``low_watermark``.
 Cleaning competes with user requests for the bank and the current budget and
 counts in energy (``energy_erase_pj``) and wear.
+
+The agent runs in either timing engine through a narrow interface: its
+sub-processes yield what the engine's ``take_current``, ``hold`` and
+``give_current`` return, and read the engine's ``now``, ``current_limit``,
+``next_read``, ``add_bank_busy`` and ``add_power_wait``.
 """
 from __future__ import annotations
 
@@ -96,6 +101,24 @@ class EraseAgent:
             out[i] = self.base[b] + self.pools[b]._l2p[int(self.local[lg])]
         return out
 
+    def prepare_write(self, b: int, logical: int):
+        """Sub-process: find a line for a user write of ``logical`` in bank ``b``.
+
+        Cleans first when the pool is low, and while the fallback makes the
+        write wait.  Returns (pool line, whether it is out of place).
+        """
+        while self.pools[b].need_erase():       # clean first if the pool is low
+            if not (yield from self.clean(b)):
+                break
+        while True:
+            # With block erase the leveler is "none": the write path's line
+            # is the logical line; the pool places it.
+            phys, mode = self.place(b, logical)
+            if mode != WAIT:
+                return phys, mode == OUT_OF_PLACE
+            if not (yield from self.clean(b)):
+                raise RuntimeError("block erase: no initialized line and nothing to clean")
+
     # ------------------------------------------------------------ cleaning
     def wants_idle_clean(self, b: int) -> bool:
         pool = self.pools[b]
@@ -117,35 +140,32 @@ class EraseAgent:
         Returns False when there was nothing to clean.
         """
         eng = self.engine
-        env, tot = eng.env, eng.totals
         job = self.jobs[b]
         if job is None:
             job = self.jobs[b] = self._start(b)
             if job is None:
                 return False
         steps = job["steps"]
-        t0 = env.now
-        # The bank's channel pool (global bank index = channel * banks + bank).
-        pool_ua = (eng.pools[b // eng.cfg.array.banks if len(eng.pools) > 1 else 0]
-                   if eng.pools else None)
-        need = min(self.erase_ua, pool_ua.capacity) if pool_ua is not None else 0.0
+        t0 = eng.now
+        limit = eng.current_limit(b)
+        need = min(self.erase_ua, limit) if limit is not None else 0.0
         if need > 0:
-            yield pool_ua.get(need)
-            tot.power_wait_ns += env.now - t0
-        start = env.now
+            yield eng.take_current(b, need)
+            eng.add_power_wait(eng.now - t0)
+        start = eng.now
         t = start
         k = job["next"]
         while k < len(steps):
             t += steps[k]
             k += 1
-            if yield_to_reads and eng._next_read(b, start, t) is not None:
+            if yield_to_reads and eng.next_read(b, start, t) is not None:
                 break
         job["next"] = k
-        tot.bank_busy_ns[b] += t - t0
-        yield env.timeout(t - start)
+        eng.add_bank_busy(b, t - t0)
+        yield eng.hold(t - start)
         if need > 0:
-            yield pool_ua.put(need)
-        self.cleaner_ns += env.now - t0
+            yield eng.give_current(b, need)
+        self.cleaner_ns += eng.now - t0
         if k == len(steps):
             self._finish(b, job)
         return True

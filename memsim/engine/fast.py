@@ -2,17 +2,23 @@
 
 Same controller and same results as the simpy reference
 (:class:`memsim.engine.timing.TimingEngine`), request for request; see
-:mod:`memsim.engine.kernel` for how the event order is kept.  Features the
-kernel does not cover yet are listed by :func:`unsupported`; a run that
-uses one goes to the reference engine (:func:`make_engine`).
+:mod:`memsim.engine.kernel` for how the event order is kept.  Decisions that
+live in Python objects (refresh scans and scrub draws, the erase pool's
+placement and cleaning, whether a hint pre-programmed a write's line) are
+taken between kernel events, at the moment the reference takes them.
+Features the kernel does not cover would be listed by :func:`unsupported`
+(none now); a run that uses one goes to the reference engine
+(:func:`make_engine`).
 """
 from __future__ import annotations
 
+from collections import deque
 from collections.abc import Iterable
 
 import numpy as np
 
 from memsim.engine import kernel as K
+from memsim.engine.fast_steps import AgentSteps, grown_queues
 from memsim.engine.ops import OpColumns, prepare_ops
 from memsim.engine.refresh_agent import URGENT, RefreshAgent
 from memsim.engine.stream import LatencyStream
@@ -25,21 +31,15 @@ ENGINES = ("fast", "reference")
 
 
 def unsupported(cfg, path: WritePath, plan: RefreshPlan | None) -> list[str]:
-    """Features of this run the compiled kernel does not cover (empty: it runs)."""
-    gaps = []
-    if path.scheme.out_of_place:
-        gaps.append("block erase (write.scheme block_erase)")
-    w = cfg.workload
-    if cfg.controller.hint_preset and (w.hint_lead_ns > 0 or w.pattern == "trace"):
-        gaps.append("hint pre-programming with hints in the stream (controller.hint_preset)")
-    if plan is not None and plan.policy != "none":
-        # The kernel has the refresh scans and queues, but a generated
-        # config was seen to crash them: not enabled until that is found.
-        gaps.append(f"refresh policy {plan.policy}")
-    return gaps
+    """Features of this run the compiled kernel does not cover (empty: it runs).
+
+    Every feature of the reference is covered now; a feature added to the
+    reference before the kernel has it is named here, and the run falls back.
+    """
+    return []
 
 
-class FastEngine(TimingEngine):
+class FastEngine(AgentSteps, TimingEngine):
     """Compiled twin of :class:`TimingEngine` (same constructor, same totals)."""
 
     name = "fast"
@@ -50,12 +50,14 @@ class FastEngine(TimingEngine):
         gaps = unsupported(cfg, path, refresh)
         if gaps:
             raise ValueError("the fast engine does not cover: " + "; ".join(gaps))
-        # No hint ever reaches this engine (see unsupported), so every user write
-        # takes its in-place cost: its wear is known when the write path applies it.
-        path.defer_user_wear = False
-
-    def _queue_hints(self, hints: Chunk) -> None:
-        raise RuntimeError("the fast engine does not pre-program from hints; use the reference engine")
+        w = cfg.workload
+        # The bank decides a user write's form at service (Python between kernel
+        # events) with block erase, and where hints may have pre-programmed its
+        # line; otherwise every user write takes its in-place cost and its wear
+        # is known when the write path applies it.
+        self.place_at_service = self.out_of_place or (
+            self.hint_mode and (w.hint_lead_ns > 0 or w.pattern == "trace"))
+        path.defer_user_wear = self.place_at_service
 
     # ------------------------------------------------------------ state
     def _alloc(self) -> None:
@@ -83,10 +85,9 @@ class FastEngine(TimingEngine):
         pf[K.F_RESET_UA], pf[K.F_SET_UA] = cell.reset_ua, cell.set_ua
         self.ist = np.zeros(K.N_IST, np.int64)
         self.fst = np.zeros(K.N_FST)
-        # One pending event per process, plus at most one current return per bank.
-        # One pending event per process (source, banks, refresh scans), plus
-        # at most one current return per bank.
-        n_events = 3 * nb + 2
+        # One pending event per process (source, banks, refresh scans, a bank's
+        # hint timer), a return per bank, and void hint timers (the heap grows).
+        n_events = 4 * nb + 16
         self.ht = np.zeros(n_events)
         self.hs = np.zeros(n_events, np.int64)
         self.hp = np.zeros(n_events, np.int64)
@@ -110,13 +111,23 @@ class FastEngine(TimingEngine):
         self.pq = np.zeros((max(n_pools, 1), nb + 1), np.int64)
         self.pqh, self.pqn = np.zeros(max(n_pools, 1), np.int64), np.zeros(max(n_pools, 1), np.int64)
         self.clog = np.zeros((4096, 2), np.int64)
-        self.fq = [_RefreshQueue() for _ in range(nb)]     # the refresh agent appends here
         self.fqa = np.zeros((nb, 64), np.int64)             # the kernel's refresh queues
         self.fqh, self.fqn = np.zeros(nb, np.int64), np.zeros(nb, np.int64)
         self.hlog = np.zeros((4096, 2))
         pi[K.P_SCAN_BASE] = nb + 1 + self.pool_level.size
         pi[K.P_CLOSED_REFRESH] = self.closed_refresh
         pi[K.P_URGENT] = URGENT
+        pi[K.P_SCRUB] = self.agent is not None and self.plan.policy == "scrub"
+        pi[K.P_PLACE] = self.place_at_service
+        self.ist[K.HINT_BASE] = pi[K.P_SCAN_BASE] + nb
+        self.hqa = np.zeros((nb, 64), np.int64)            # hint queues (slots)
+        self.hqh, self.hqn = np.zeros(nb, np.int64), np.zeros(nb, np.int64)
+        self.presets_due: list[deque] = [deque() for _ in range(nb)]    # (line, pJ, cells) in queue order
+        self._gens: list = [None] * nb          # the erase agent's sub-process per bank
+        self._after_put = [-1] * nb             # pool whose put a bank waits on
+        if self.erase is not None:
+            for b in range(nb):
+                self.bi[b, K.B_WANT_CLEAN] = self.erase.wants_idle_clean(b)
         scans = self.agent is not None and self.plan.active and np.isfinite(self.plan.scan_ns)
         pf[K.F_SCAN_NS] = self.plan.scan_ns if scans else 0.0
         # Process start order as in simpy: the source, bank 0, 1, ..., then
@@ -174,7 +185,7 @@ class FastEngine(TimingEngine):
     def _columns(ops: OpColumns) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
         nr, nw = ops.n_reads, ops.w_req.size
         o = ops.order
-        c_f = np.zeros((nr + nw, 4))
+        c_f = np.zeros((nr + nw, 5))
         c_f[nr:, 0], c_f[nr:, 1], c_f[nr:, 2], c_f[nr:, 3] = ops.service, ops.current, ops.pre, ops.pj
         c_i = np.zeros((nr + nw, K.N_SI), np.int64)
         c_i[:nr, K.SI_READ] = 1
@@ -187,6 +198,10 @@ class FastEngine(TimingEngine):
         c_i[nr:, K.SI_BUS] = ops.uses_bus
         c_i[nr:, K.SI_RR], c_i[nr:, K.SI_SR], c_i[nr:, K.SI_CELLS] = ops.rr, ops.sr, ops.cells
         c_i[nr:, K.SI_NSET], c_i[nr:, K.SI_NRESET] = ops.n_set, ops.n_reset
+        if ops.alt is not None:
+            # The fast form (out of place with block erase, or into a line a hint
+            # pre-programmed), taken if the bank finds it so at service.
+            c_f[nr:, 4], c_i[nr:, K.SI_OOP_SET], c_i[nr:, K.SI_OOP_RESET] = ops.alt
         bank = np.concatenate([ops.r_bank, ops.w_bank]).astype(np.int64)
         return (np.ascontiguousarray(ops.t, dtype=float), bank[o], np.ascontiguousarray(c_f[o]),
                 np.ascontiguousarray(c_i[o]))
@@ -199,12 +214,25 @@ class FastEngine(TimingEngine):
                 self.sf, self.si, self.free, self.ib, self.ibh, self.ibn, self.rq, self.rqh, self.rqn,
                 self.wq, self.wqh, self.wqn, self.rpend, self.wpend, self.bus_free, self.pool_level,
                 self.pq, self.pqh, self.pqn, cols[0], cols[1], cols[2], cols[3], base,
-                self.done_f, self.done_i, self.clog, self.fqa, self.fqh, self.fqn, self.hlog)
+                self.done_f, self.done_i, self.clog, self.fqa, self.fqh, self.fqn, self.hlog,
+                self.hqa, self.hqh, self.hqn)
             self._flush_cancel_wear()
             self._flush_done()
             self._flush_handovers()
             if status == K.SCAN:
                 self._scan(int(ist[K.SCAN_B]))
+                continue
+            if status == K.SCRUB:
+                self.agent.on_read(int(ist[K.SCAN_B]), int(ist[K.SCRUB_PHYS]), float(fst[K.NOW]))
+                continue
+            if status == K.PLACE_WRITE and self.erase is None:
+                self._hint_placed(int(ist[K.SCAN_B]))
+                continue
+            if status in (K.BANK_PY, K.PLACE_WRITE, K.IDLE_CLEAN):
+                self._erase_step(status, int(ist[K.SCAN_B]))
+                continue
+            if status == K.GROW_HEAP:
+                self._ensure_heap(0)
                 continue
             if status == K.NEED_SLOTS:
                 self._grow_slots()
@@ -221,7 +249,21 @@ class FastEngine(TimingEngine):
         if n > self.clog.shape[0]:
             raise RuntimeError("fast engine: cancellation log overflow")
         if n:
-            self.cancel_wear(self.clog[:n, 0], self.clog[:n, 1])
+            rows = self.clog[:n]
+            done = rows[:, 0] < 0
+            if done.any():
+                # Pre-programmings that ended (row: -1 - bank), in order.
+                tot, path = self.totals, self.path
+                for b in (-1 - rows[done, 0]).tolist():
+                    line, pj, cells = self.presets_due[b].popleft()
+                    self.preset[line] = True
+                    tot.presets += 1
+                    tot.preset_pj += pj
+                    tot.preset_cells += cells
+                    path.line_writes[line] += 1
+                    path.ledger.add("preset", line, cells)
+                rows = rows[~done]
+            self.cancel_wear(rows[:, 0], rows[:, 1])
             self.ist[K.CLOG_N] = 0
 
     def _flush_done(self) -> None:
@@ -257,31 +299,23 @@ class FastEngine(TimingEngine):
         self.agent.scan_once(b, now)
         K.push_event(self.ht, self.hs, self.hp, ist, now + self.plan.scan_ns, int(self.pi[K.P_SCAN_BASE]) + b)
 
-    def _wake(self, b: int, at: float) -> None:
-        """The refresh agent queued operations for bank ``b``: hand them over, wake it."""
-        items = self.fq[b].take()
-        if items:
-            ch, service, current, phys = (np.array(c) for c in zip(*((it[1], it[2], it[4], it[10])
-                                                                     for _, it in items)))
-            while int(self.ist[K.FREE_TOP]) < len(items):
+    def queue_refreshes(self, b: int, ch: np.ndarray, service: np.ndarray, current: np.ndarray,
+                        lines: np.ndarray, now: float) -> None:
+        """The refresh agent's operations for bank ``b`` into the kernel's refresh queue; wake it."""
+        n = lines.size
+        if n:
+            while int(self.ist[K.FREE_TOP]) < n:
                 self._grow_slots()
-            need = int(self.fqn[b]) + len(items)
+            need = int(self.fqn[b]) + n
             if need > self.fqa.shape[1]:
                 self._grow_refresh_queues(need)
-            K.queue_refreshes(b, ch.astype(np.int64), service.astype(float), current.astype(float),
-                              phys.astype(np.int64), self.sf, self.si, self.free, self.ist,
-                              self.fqa, self.fqh, self.fqn, float(self.fst[K.NOW]))
-        K.wake(b, at, self.bi, self.ist, self.fst, self.ht, self.hs, self.hp)
+            K.queue_refreshes(b, np.asarray(ch, np.int64), np.asarray(service, float),
+                              np.asarray(current, float), np.asarray(lines, np.int64), self.sf, self.si,
+                              self.free, self.ist, self.fqa, self.fqh, self.fqn, float(self.fst[K.NOW]))
+        K.wake(b, now, self.bi, self.ist, self.fst, self.ht, self.hs, self.hp)
 
     def _grow_refresh_queues(self, need: int) -> None:
-        cap = self.fqa.shape[1]
-        new_cap = max(2 * cap, need)
-        new = np.zeros((self.fqa.shape[0], new_cap), np.int64)
-        for b in range(self.fqa.shape[0]):
-            k = int(self.fqn[b])
-            new[b, :k] = self.fqa[b, (self.fqh[b] + np.arange(k)) % cap]
-        self.fqa = new
-        self.fqh[:] = 0
+        self.fqa = grown_queues(self.fqa, self.fqh, need, self.fqn)
 
     def cancel_wear(self, phys: np.ndarray, wasted: np.ndarray) -> None:
         """Cells programmed by aborted writes (the reference counts them one by one)."""
@@ -294,11 +328,9 @@ class FastEngine(TimingEngine):
             self.agent = RefreshAgent(self, self.plan, self.rng)
         self._alloc()
         nb = self.amap.total_banks
-        empty = (np.zeros(0), np.zeros(0, np.int64), np.zeros((0, 4)), np.zeros((0, K.N_SI), np.int64))
-        status = K.NEED_CHUNK
-        fed = False
+        empty = (np.zeros(0), np.zeros(0, np.int64), np.zeros((0, 5)), np.zeros((0, K.N_SI), np.int64))
+        started = False
         for chunk in self.source:
-            fed = True
             ops = prepare_ops(self, chunk)
             base = self._take_requests(ops)
             if not self.closed:
@@ -309,10 +341,10 @@ class FastEngine(TimingEngine):
             status = self._call(self._columns(ops), base)
             if status != K.NEED_CHUNK:
                 raise RuntimeError(f"fast engine: unexpected kernel status {status}")
-        if not fed:
-            # No request at all (a cache that absorbed every one): the source
-            # still takes its first step, as the reference's source process does.
-            self.ist[K.SRC_POS] = 0
+            started = True
+        if not started:
+            # No request reached the memory (a cache took them all): the
+            # source still takes its first step at time 0, before the banks.
             status = self._call(empty, 0)
             if status != K.NEED_CHUNK:
                 raise RuntimeError(f"fast engine: unexpected kernel status {status}")
@@ -349,25 +381,9 @@ class FastEngine(TimingEngine):
         if self.agent is not None:
             self.agent.finish(tot.simulated_ns)
             tot.refresh_pj = self.agent.energy_pj
+        if self.erase is not None:
+            tot.erase_pj = self.erase.energy_pj
         return tot
-
-
-class _RefreshQueue:
-    """Where the refresh agent appends operations; the engine moves them into the kernel."""
-
-    def __init__(self) -> None:
-        self.items: list = []
-
-    def append(self, item) -> None:
-        self.items.append(item)
-
-    def take(self) -> list:
-        items, self.items = self.items, []
-        return items
-
-    def __len__(self) -> int:
-        return len(self.items)
-
 
 def make_engine(cfg, source: Iterable[Chunk], path: WritePath, refresh: RefreshPlan | None = None,
                 rng: np.random.Generator | None = None) -> TimingEngine:

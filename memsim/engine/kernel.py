@@ -10,7 +10,10 @@ resumes a generator, the kernel stores a resume point.
 
 All state lives in numpy arrays owned by :class:`memsim.engine.fast.FastEngine`,
 so the kernel can return to Python when the source needs the next chunk (the
-moment the reference prepares it) or more slots, and continue afterwards.
+moment the reference prepares it) or more slots, when a refresh scan or a
+scrub draw is due, when a write's form must be decided (block erase, hints)
+or an erase sub-process resumes (:mod:`memsim.engine.kernel_erase`), and
+continue afterwards.
 Every float is computed with the same operations in the same order as the
 reference, so finish times agree bit for bit.
 """
@@ -23,37 +26,42 @@ from numba import njit
 SEQ, HSIZE, SRC_K, SRC_POS, SRC_RUN, IN_FLIGHT, SRC_DONE, SLOT_WAIT, FREE_TOP = range(9)
 CANCELS, PAUSES, CANC_CELLS, CLOG_N, USER_SET, USER_RESET, SRC_B, ERROR = range(9, 17)
 SET_CELLS, RESET_CELLS, READ_BITS, DONE_N = range(17, 21)
-REFRESH_RUNNING, SCAN_B, SRC_LOGGED, HLOG_N = range(21, 25)
-N_IST = 25
+REFRESH_RUNNING, SCAN_B, SRC_LOGGED, HLOG_N, SCRUB_PHYS, RESUME, HINT_BASE = range(21, 28)
+N_IST = 28
 # ---- float state (fst)
 NOW, SRC_T, POWER_WAIT, CANC_PJ, REFRESH_BUSY = range(5)
 N_FST = 5
 # ---- integer parameters (pi)
 P_NB, P_RCAP, P_WCAP, P_HIGH, P_LOW, P_IDLEW, P_CLOSED, P_LIMIT, P_EXT, P_CANCEL, P_PAUSE, \
-    P_NPOOLS, P_CAS, P_PER_RESET, P_PER_SET, P_EXTRA_BITS, P_SCAN_BASE, P_CLOSED_REFRESH, P_URGENT = range(19)
-N_PI = 19
+    P_NPOOLS, P_CAS, P_PER_RESET, P_PER_SET, P_EXTRA_BITS, P_SCAN_BASE, P_CLOSED_REFRESH, P_URGENT, \
+    P_SCRUB, P_PLACE = range(21)
+N_PI = 21
 # ---- float parameters (pf)
 F_BURST, F_READ, F_HIT, F_CANCEL_BEFORE, F_RESET_NS, F_SET_NS, F_POOL_CAP, F_RESET_UA, F_SET_UA, \
     F_SCAN_NS = range(10)
 N_PF = 10
 # ---- per-bank integers (bi)
-B_KIND, B_SLOT, B_DRAIN, B_ROW, B_IDLE, B_SPACE, B_WDRAIN, B_AGAIN, B_DONE, B_STREAK, B_SCANNED = range(11)
-N_BI = 11
+B_KIND, B_SLOT, B_DRAIN, B_ROW, B_IDLE, B_SPACE, B_WDRAIN, B_AGAIN, B_DONE, B_STREAK, B_SCANNED, \
+    B_WANT_CLEAN, B_HSLEEP, B_HSEQ, B_WSEQ = range(15)
+N_BI = 15
 # ---- per-bank floats (bf)
 BF_BUSY, BF_T0, BF_NEED = range(3)
 N_BF = 3
 # ---- slot fields
-SF_T, SF_SERVICE, SF_CUR, SF_PRE, SF_PJ = range(5)
-N_SF = 5
-SI_READ, SI_REQ, SI_CH, SI_ROW, SI_PHYS, SI_BUS, SI_RR, SI_SR, SI_CELLS, SI_NSET, SI_NRESET = range(11)
-N_SI = 11
+SF_T, SF_SERVICE, SF_CUR, SF_PRE, SF_PJ, SF_OOP_NS = range(6)
+N_SF = 6
+SI_READ, SI_REQ, SI_CH, SI_ROW, SI_PHYS, SI_BUS, SI_RR, SI_SR, SI_CELLS, SI_NSET, SI_NRESET, \
+    SI_OOP_SET, SI_OOP_RESET = range(13)
+N_SI = 13
 # ---- resume points of a bank
-K_RUN, K_DONE, K_GOT, K_WDONE = range(4)
+K_RUN, K_DONE, K_GOT, K_WDONE, K_PY = range(5)     # K_PY: a Python sub-process (erase agent) waits
 # ---- resume points of the source
 S_NEXT, S_SLOT, S_HAND, S_AFTER_T, S_SPACECHK, S_SPACE = range(6)
 # ---- kernel status
-BLOCKED, NEED_CHUNK, NEED_SLOTS, FINISHED, FAILED, FLUSH, SCAN = range(7)
+BLOCKED, NEED_CHUNK, NEED_SLOTS, FINISHED, FAILED, FLUSH, SCAN, SCRUB, BANK_PY, PLACE_WRITE, \
+    IDLE_CLEAN, GROW_HEAP = range(12)
 REFRESH = -2          # request field of a refresh operation (as in the reference)
+PRESET = -3           # request field of a hint's pre-programming (as in the reference)
 
 
 @njit(cache=True)
@@ -141,6 +149,12 @@ def _wake(b, at, bi, ist, fst, ht, hs, hp):
         bi[b, B_KIND] = K_RUN
         now = fst[NOW]
         d = at - now
+        if bi[b, B_HSLEEP] != 0:
+            # Asleep on "woken or the next hint" (simpy any_of): the wake-up
+            # is one arm; whichever arm comes first resumes the bank.
+            bi[b, B_WSEQ] = ist[SEQ]
+            _push(ht, hs, hp, ist, now + (d if d > 0.0 else 0.0), ist[HINT_BASE] + b)
+            return
         _push(ht, hs, hp, ist, now + (d if d > 0.0 else 0.0), b)
 
 
@@ -181,7 +195,7 @@ def _trigger_get(p, me, pool_level, pq, pqh, pqn, bf, ist, fst, ht, hs, hp):
 @njit(cache=True)
 def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn, rq, rqh, rqn,
                wq, wqh, wqn, rpend, wpend, bus_free, pool_level, pq, pqh, pqn,
-               c_t, c_bank, c_f, c_i, base, done_f, done_i, clog, fq, fqh, fqn, hlog):
+               c_t, c_bank, c_f, c_i, base, done_f, done_i, clog, fq, fqh, fqn, hlog, hq, hqh, hqn):
     """Run until the source needs a chunk or slots, or until the end.
 
     Chunk columns (admission order): ``c_t`` time, ``c_bank``, ``c_f`` =
@@ -203,16 +217,35 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
     burst, read_ns, hit_ns = pf[F_BURST], pf[F_READ], pf[F_HIT]
     n_entries = c_t.shape[0]
     while True:
-        if ist[CLOG_N] >= clog.shape[0] or ist[DONE_N] >= done_f.shape[0]:
-            return FLUSH              # the caller takes the logs first (one entry per event at most)
+        if ist[CLOG_N] + 1 >= clog.shape[0] or ist[DONE_N] >= done_f.shape[0]:
+            return FLUSH              # the caller takes the logs first (two entries per event at most)
+        if ist[HSIZE] + 2 * nb + 8 > ht.shape[0]:
+            return GROW_HEAP          # void hint timers stay in the heap until their time
+        seq = -1
         if ist[SRC_RUN] != 0:
             pid = src
+        elif ist[RESUME] != 0:
+            # A bank whose Python sub-process ended goes on at this time.
+            pid = ist[RESUME] - 1
+            ist[RESUME] = 0
         else:
             if ist[HSIZE] == 0:
                 return FINISHED
+            seq = hs[0]
             t, pid = _pop(ht, hs, hp, ist)
             fst[NOW] = t
         now = fst[NOW]
+        if pid >= ist[HINT_BASE]:
+            # An arm of a bank's sleep on "woken or the next hint": the first
+            # to come triggers the condition (its own event, now); the
+            # other one comes to nothing.
+            hb = pid - ist[HINT_BASE]
+            if bi[hb, B_HSLEEP] != 0 and (seq == bi[hb, B_HSEQ] or seq == bi[hb, B_WSEQ]):
+                bi[hb, B_HSLEEP] = 0
+                bi[hb, B_IDLE] = 0
+                bi[hb, B_KIND] = K_RUN
+                _push(ht, hs, hp, ist, now, hb)
+            continue
         if pid >= pi[P_SCAN_BASE]:
             # A refresh scan of bank pid - base: its first step only waits.
             sb = pid - pi[P_SCAN_BASE]
@@ -326,6 +359,10 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
         b = pid
         kind = bi[b, B_KIND]
         top = True
+        scrub_phys = -1
+        if kind == K_PY:
+            ist[SCAN_B] = b
+            return BANK_PY
         if kind == K_DONE:
             s = bi[b, B_SLOT]
             if si[s, SI_REQ] >= 0:
@@ -354,6 +391,11 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
             else:
                 if si[s, SI_REQ] >= 0:
                     _complete(s, now, sf, si, done_f, done_i, ist, ht, hs, hp, src)
+                elif si[s, SI_REQ] == PRESET:
+                    # The line is pre-programmed: the caller counts it (bank b's next).
+                    clog[ist[CLOG_N], 0] = -1 - b
+                    clog[ist[CLOG_N], 1] = 0
+                    ist[CLOG_N] += 1
                 _free(s, free, ist)
         if not top:
             continue
@@ -385,6 +427,12 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
                 if bi[b, B_SPACE] != 0:
                     bi[b, B_SPACE] = 0
                     _push(ht, hs, hp, ist, now, src)
+                if pi[P_PLACE] != 0:
+                    # The caller decides the write's form: the erase agent places it
+                    # (and may clean first), or it finds its line pre-programmed.
+                    bi[b, B_WDRAIN] = 1 if draining else 0
+                    ist[SCAN_B] = b
+                    return PLACE_WRITE
                 _write_start(b, s, draining, now, pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si,
                              ib, ibh, ibn, rqn, bus_free, pool_level, pq, pqh, pqn, clog)
                 continue
@@ -399,6 +447,8 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
             s = _q_pop(rq, rqh, rqn, b)
             bi[b, B_SLOT] = s
             bi[b, B_STREAK] = 0
+            if pi[P_SCRUB] != 0:
+                scrub_phys = si[s, SI_PHYS]
             row = si[s, SI_ROW]
             ch = si[s, SI_CH]
             start = now + (hit_ns if (row >= 0 and row == bi[b, B_ROW]) else read_ns)
@@ -407,13 +457,35 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
                 start = bus_free[ch]
             bus_free[ch] = start + burst
             dur = start + burst - now
-        elif ibn[b] > 0:
-            # Idle until the next arrival (the source hands requests over
-            # in time order: nothing can arrive before the inbox head).
-            bi[b, B_KIND] = K_RUN
-            _push(ht, hs, hp, ist, now + (sf[ib[b, ibh[b]], SF_T] - now), b)
+        elif hqn[b] > 0 and sf[hq[b, hqh[b]], SF_T] <= now:
+            # Idle with a hint in hand: pre-program its line.
+            s = _q_pop(hq, hqh, hqn, b)
+            bi[b, B_SLOT] = s
+            _write_start(b, s, False, now, pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si,
+                         ib, ibh, ibn, rqn, bus_free, pool_level, pq, pqh, pqn, clog)
+            continue
+        elif ibn[b] > 0 or hqn[b] > 0:
+            if bi[b, B_WANT_CLEAN] != 0:
+                ist[SCAN_B] = b             # idle: the erase agent cleans a block
+                return IDLE_CLEAN
+            if ibn[b] > 0 and (hqn[b] == 0 or sf[ib[b, ibh[b]], SF_T] <= sf[hq[b, hqh[b]], SF_T]):
+                # Idle until the next arrival (the source hands requests over
+                # in time order: nothing can arrive before the inbox head).
+                bi[b, B_KIND] = K_RUN
+                _push(ht, hs, hp, ist, now + (sf[ib[b, ibh[b]], SF_T] - now), b)
+                continue
+            # Next is a hint, but a request may still be handed over for an
+            # earlier time: sleep until either.
+            bi[b, B_IDLE] = 1
+            bi[b, B_HSLEEP] = 1
+            bi[b, B_HSEQ] = ist[SEQ]
+            bi[b, B_WSEQ] = -1
+            _push(ht, hs, hp, ist, now + (sf[hq[b, hqh[b]], SF_T] - now), ist[HINT_BASE] + b)
             continue
         else:
+            if bi[b, B_WANT_CLEAN] != 0:
+                ist[SCAN_B] = b
+                return IDLE_CLEAN
             if ist[SRC_DONE] != 0 and wqn[b] == 0 and fqn[b] == 0 and ist[REFRESH_RUNNING] == 0:
                 bi[b, B_DONE] = 1
                 continue
@@ -425,6 +497,13 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
         bf[b, BF_BUSY] += dur
         bi[b, B_KIND] = K_DONE
         _push(ht, hs, hp, ist, now + dur, b)
+        if scrub_phys >= 0:
+            # Scrub-on-read decides in Python; what it queues waits for this
+            # bank's next turn, so deciding after the read is scheduled
+            # changes no event.
+            ist[SCAN_B] = b
+            ist[SCRUB_PHYS] = scrub_phys
+            return SCRUB
 
 
 @njit(cache=True)
@@ -446,6 +525,7 @@ def _fill(pos, t, base, c_f, c_i, sf, si, free, ist):
     sf[s, SF_CUR] = c_f[pos, 1]
     sf[s, SF_PRE] = c_f[pos, 2]
     sf[s, SF_PJ] = c_f[pos, 3]
+    sf[s, SF_OOP_NS] = c_f[pos, 4]
     for j in range(N_SI):
         si[s, j] = c_i[pos, j]
     if si[s, SI_REQ] >= 0:
@@ -477,7 +557,7 @@ def _complete(s, now, sf, si, done_f, done_i, ist, ht, hs, hp, src):
 def _write_start(b, s, draining, now, pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, ib, ibh, ibn, rqn,
                  bus_free, pool_level, pq, pqh, pqn, clog):
     """Begin one write or move: cost decided at service, then wait for current."""
-    if pi[P_CAS] != 0 and si[s, SI_REQ] != REFRESH:
+    if pi[P_CAS] != 0 and si[s, SI_REQ] != REFRESH and si[s, SI_REQ] != PRESET:
         # Cost decided at service (hint mode without a pre-programmed line:
         # the in-place form); counted in service order like the reference.
         n_set, n_reset = si[s, SI_NSET], si[s, SI_NRESET]

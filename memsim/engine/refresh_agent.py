@@ -1,5 +1,7 @@
 """Refresh inside the timing engine: line ages, scans, scrub-on-read.
 
+The agent talks to the engine through ``queue_refreshes`` and
+``refresh_cost``; the engine runs the scans and calls :meth:`RefreshAgent.scan_once`.
 The agent tracks, per physical line, the simulated time of its last write or
 refresh.  Writes are known ahead of simulated time (chunks are prepared in
 advance), so they are queued and applied when simulated time reaches them.
@@ -101,26 +103,8 @@ class RefreshAgent:
         np.add.at(self.per_line, lines, 1)
         self.energy_pj += float(energy.sum())
         self.cells += int(cells.sum())
-        fq = eng.fq[b]
-        # Same item layout as a write (see TimingEngine._prepare); no pause
-        # points, energy already counted here.
-        for ch, s, cur, ph in zip(self.channel[lines].tolist(), service.tolist(), current.tolist(),
-                                  lines.tolist()):
-            fq.append((None, (REFRESH, ch, s, False, cur, 0.0, 0, 0, 0.0, 0, ph)))
-        eng._wake(b, now)
-
-    def scan(self, b: int):
-        """Simpy process: periodic or drift-triggered refresh of bank ``b``."""
-        eng, plan = self.engine, self.plan
-        env = eng.env
-        while True:
-            yield env.timeout(plan.scan_ns)
-            if eng.source_done and eng.in_flight == 0:
-                break
-            self.scan_once(b, env.now)
-        eng.refresh_running -= 1
-        for bank in range(len(eng.idle)):
-            eng._wake(bank, env.now)
+        # Energy is counted here; the engine queues the operations and wakes the bank.
+        eng.queue_refreshes(b, self.channel[lines], service, current, lines, now)
 
     def scan_once(self, b: int, now: float) -> None:
         """One scan of bank ``b`` at ``now``: queue a refresh for every line due."""

@@ -27,9 +27,9 @@ from operator import itemgetter
 import numpy as np
 import simpy
 
-from memsim.engine.erase_agent import OUT_OF_PLACE, WAIT, EraseAgent
+from memsim.engine.erase_agent import EraseAgent
 from memsim.engine.ops import prepare_ops
-from memsim.engine.refresh_agent import URGENT, RefreshAgent
+from memsim.engine.refresh_agent import REFRESH, URGENT, RefreshAgent
 from memsim.engine.stream import LatencyStream
 from memsim.policy.refresh import RefreshPlan
 from memsim.policy.write.bits import popcount_rows
@@ -239,7 +239,7 @@ class TimingEngine:
         if self.agent is not None and self.plan.active and np.isfinite(self.plan.scan_ns):
             self.refresh_running = nb
             for b in range(nb):
-                env.process(self.agent.scan(b))
+                env.process(self._refresh_scan(b))
         # The run allocates millions of short-lived tuples and events that
         # reference counting frees; the cyclic collector would only rescan
         # the long-lived prepared chunks over and over.  Pause it for the run.
@@ -251,6 +251,28 @@ class TimingEngine:
             if was_enabled:
                 gc.enable()
         return self._finish()
+
+    def _refresh_scan(self, b: int):
+        """Simpy process: periodic or drift-triggered refresh scans of bank ``b``."""
+        env, scan_ns = self.env, self.plan.scan_ns
+        while True:
+            yield env.timeout(scan_ns)
+            if self.source_done and self.in_flight == 0:
+                break
+            self.agent.scan_once(b, env.now)
+        self.refresh_running -= 1
+        for bank in range(len(self.idle)):
+            self._wake(bank, env.now)
+
+    def queue_refreshes(self, b: int, ch: np.ndarray, service: np.ndarray, current: np.ndarray,
+                        lines: np.ndarray, now: float) -> None:
+        """Queue refresh operations (read, reprogram) of ``lines`` at bank ``b``; wake it."""
+        fq = self.fq[b]
+        # Same item layout as a write (see _prepare); no pause points, no
+        # energy (the refresh agent counts it).
+        for c_, s_, cur, ph in zip(ch.tolist(), service.tolist(), current.tolist(), lines.tolist()):
+            fq.append((None, (REFRESH, c_, s_, False, cur, 0.0, 0, 0, 0.0, 0, ph)))
+        self._wake(b, now)
 
     def _wake(self, b: int, at: float) -> None:
         """Wake bank ``b`` at time ``at`` if it sleeps with nothing to do."""
@@ -483,6 +505,42 @@ class TimingEngine:
             # earlier time may still come) so it plans its sleep again.
             self._wake(b, self.env.now)
 
+    # ---------------------------------------- the interface agents run on
+    @property
+    def now(self) -> float:
+        """Simulated time, ns."""
+        return self.env.now
+
+    def current_limit(self, b: int) -> float | None:
+        """Capacity of the current pool bank ``b`` draws from, uA (None: no budget)."""
+        return self.pools[self._pool_of(b)].capacity if self.pools else None
+
+    def _pool_of(self, b: int) -> int:
+        # Global bank index = channel * banks + bank.
+        return b // self.cfg.array.banks if len(self.pools) > 1 else 0
+
+    def take_current(self, b: int, need: float):
+        """Event: ``need`` uA of bank ``b``'s pool are held (yield it)."""
+        return self.pools[self._pool_of(b)].get(need)
+
+    def give_current(self, b: int, need: float):
+        """Event: ``need`` uA given back to bank ``b``'s pool (yield it)."""
+        return self.pools[self._pool_of(b)].put(need)
+
+    def hold(self, dt: float):
+        """Event: ``dt`` ns have passed (yield it)."""
+        return self.env.timeout(dt)
+
+    def add_bank_busy(self, b: int, dt: float) -> None:
+        self.totals.bank_busy_ns[b] += dt
+
+    def add_power_wait(self, dt: float) -> None:
+        self.totals.power_wait_ns += dt
+
+    def next_read(self, b: int, now: float, end: float) -> float | None:
+        """Arrival time of the first read that reaches bank ``b`` before ``end``."""
+        return self._next_read(b, now, end)
+
     def _next_read(self, b: int, now: float, end: float) -> float | None:
         """Arrival time of the first read that reaches bank ``b`` before ``end``."""
         if self.rq[b]:
@@ -514,19 +572,7 @@ class TimingEngine:
             # initialized line (block erase) or into a line pre-programmed
             # from a hint is the fast form, anything else the in-place one.
             if self.erase is not None:
-                er = self.erase
-                while er.pools[b].need_erase():       # clean first if the pool is low
-                    if not (yield from er.clean(b)):
-                        break
-                while True:
-                    # With block erase the leveler is "none": the write
-                    # path's line is the logical line; the pool places it.
-                    phys, mode = er.place(b, item[10])
-                    if mode != WAIT:
-                        break
-                    if not (yield from er.clean(b)):
-                        raise RuntimeError("block erase: no initialized line and nothing to clean")
-                fast = mode == OUT_OF_PLACE
+                phys, fast = yield from self.erase.prepare_write(b, item[10])
             else:
                 fast = self.preset.pop(phys, False)
                 tot.hint_hits += fast
