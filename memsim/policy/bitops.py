@@ -109,12 +109,12 @@ def count_masks(masks, m, profile):
 
 
 @njit(cache=True)
-def _decode_into(kind, word_bits, stored, flags, line, out):
-    """Logical content of stored line ``line`` into ``out`` (words)."""
+def _decode_into(kind, word_bits, stored, flags, line, out, r):
+    """Logical content of stored line ``line`` into row ``r`` of ``out`` (words)."""
     nw = stored.shape[1]
     if kind != FLIP:
         for w in range(nw):
-            out[w] = stored[line, w]
+            out[r, w] = stored[line, w]
         return
     per = 64 // word_bits
     full = ~np.uint64(0)
@@ -124,31 +124,31 @@ def _decode_into(kind, word_bits, stored, flags, line, out):
         for s in range(per):
             if flags[line, w * per + s] != 0:
                 x ^= sub << np.uint64(s * word_bits)
-        out[w] = x
+        out[r, w] = x
 
 
 @njit(cache=True)
-def _encode_full(stored, line, new, mask):
+def _encode_full(stored, line, new, r, masks, m):
     """Full-line write: every cell programmed, 1 bits SET, 0 bits RESET."""
     n_set = 0
     for w in range(stored.shape[1]):
-        x = new[w]
-        mask[w] = ~np.uint64(0)
+        x = new[r, w]
+        masks[m, w] = ~np.uint64(0)
         n_set += popcount64(x)
         stored[line, w] = x
     return n_set, 64 * stored.shape[1] - n_set, n_set
 
 
 @njit(cache=True)
-def _encode_compare(stored, line, new, mask):
+def _encode_compare(stored, line, new, r, masks, m):
     """Data-comparison write: only the cells that change."""
     n_set = 0
     n_reset = 0
     ones = 0
     for w in range(stored.shape[1]):
         o = stored[line, w]
-        x = new[w]
-        mask[w] = o ^ x
+        x = new[r, w]
+        masks[m, w] = o ^ x
         n_set += popcount64(~o & x)
         n_reset += popcount64(o & ~x)
         ones += popcount64(x)
@@ -157,7 +157,7 @@ def _encode_compare(stored, line, new, mask):
 
 
 @njit(cache=True)
-def _encode_flip(word_bits, stored, flags, line, new, old_flags, n_bits, profile, mask):
+def _encode_flip(word_bits, stored, flags, line, new, r, old_flags, rf, n_bits, profile, masks, m):
     """Flip-N-Write: per word the plain or inverted form, whichever programs fewer cells."""
     per = 64 // word_bits
     sub = ~np.uint64(0) if word_bits == 64 else (np.uint64(1) << np.uint64(word_bits)) - np.uint64(1)
@@ -166,16 +166,16 @@ def _encode_flip(word_bits, stored, flags, line, new, old_flags, n_bits, profile
     ones = 0
     for w in range(stored.shape[1]):
         o = stored[line, w]
-        x = new[w]
+        x = new[r, w]
         for s in range(per):
             i = w * per + s
-            f = 1 if old_flags[i] != 0 else 0
-            m = sub << np.uint64(s * word_bits)
-            d = popcount64((o ^ x) & m)
+            f = 1 if old_flags[rf, i] != 0 else 0
+            part = sub << np.uint64(s * word_bits)
+            d = popcount64((o ^ x) & part)
             # Plain costs d + f cells, inverted W - d + 1 - f; ties stay plain.
             fi = 1 if (word_bits - d + 1 - f) < (d + f) else 0
             if fi == 1:
-                x ^= m
+                x ^= part
             flags[line, i] = fi
             if fi != f:
                 if profile.size > 0:
@@ -184,7 +184,7 @@ def _encode_flip(word_bits, stored, flags, line, new, old_flags, n_bits, profile
                     n_set += 1
                 else:
                     n_reset += 1
-        mask[w] = o ^ x
+        masks[m, w] = o ^ x
         n_set += popcount64(~o & x)
         n_reset += popcount64(o & ~x)
         ones += popcount64(x)
@@ -221,6 +221,29 @@ def write_events(kind, word_bits, stored, flags, dst, src, group, content, cidx,
         if group[k] >= 0:
             while j < n and group[j] == group[k]:
                 j += 1
+        if j == k + 1 and src[k] < 0 and not xor:
+            # A lone user write: encode straight from its content row (a
+            # line's old flags are read before they are overwritten).
+            line = dst[k]
+            if n_masks == BLOCK:
+                if profile.size > 0:
+                    count_masks(masks, n_masks, profile)
+                n_masks = 0
+            row = cidx[k]
+            if kind == COMPARE:
+                a, b, c = _encode_compare(stored, line, content, row, masks, n_masks)
+            elif kind == FLIP:
+                a, b, c = _encode_flip(word_bits, stored, flags, line, content, row, flags, line,
+                                       n_bits, profile, masks, n_masks)
+            else:
+                a, b, c = _encode_full(stored, line, content, row, masks, n_masks)
+            n_masks += 1
+            n_set[k] = a
+            n_reset[k] = b
+            ones[k] = c
+            line_writes[line] += 1
+            k = j
+            continue
         if j - k > cap:
             cap = j - k
             buf = np.empty((cap, nw), np.uint64)
@@ -232,16 +255,16 @@ def write_events(kind, word_bits, stored, flags, dst, src, group, content, cidx,
             for f in range(nf):
                 fbuf[r, f] = flags[line, f]
             if src[e] >= 0:
-                _decode_into(kind, word_bits, stored, flags, src[e], buf[r])
+                _decode_into(kind, word_bits, stored, flags, src[e], buf, r)
             elif xor:
-                _decode_into(kind, word_bits, stored, flags, line, buf[r])
-                c = cidx[e]
+                _decode_into(kind, word_bits, stored, flags, line, buf, r)
+                row = cidx[e]
                 for w in range(nw):
-                    buf[r, w] ^= content[c, w]
+                    buf[r, w] ^= content[row, w]
             else:
-                c = cidx[e]
+                row = cidx[e]
                 for w in range(nw):
-                    buf[r, w] = content[c, w]
+                    buf[r, w] = content[row, w]
         # Write phase.
         for e in range(k, j):
             r = e - k
@@ -250,15 +273,14 @@ def write_events(kind, word_bits, stored, flags, dst, src, group, content, cidx,
                 if profile.size > 0:
                     count_masks(masks, n_masks, profile)
                 n_masks = 0
-            mask = masks[n_masks]
-            n_masks += 1
             if kind == COMPARE:
-                a, b, c = _encode_compare(stored, line, buf[r], mask)
+                a, b, c = _encode_compare(stored, line, buf, r, masks, n_masks)
             elif kind == FLIP:
-                a, b, c = _encode_flip(word_bits, stored, flags, line, buf[r], fbuf[r], n_bits, profile,
-                                       mask)
+                a, b, c = _encode_flip(word_bits, stored, flags, line, buf, r, fbuf, r, n_bits, profile,
+                                       masks, n_masks)
             else:
-                a, b, c = _encode_full(stored, line, buf[r], mask)
+                a, b, c = _encode_full(stored, line, buf, r, masks, n_masks)
+            n_masks += 1
             n_set[e] = a
             n_reset[e] = b
             ones[e] = c
