@@ -4,12 +4,15 @@ Both engines feed user line writes, chunk by chunk and in the order the
 controller accepts them, through one :class:`WritePath`.  It keeps the stored
 bits (and flag cells) of every modeled physical line, so the SET and RESET
 counts of each write come from comparing real bits, and it counts wear per
-line and per cell.  The leveler's own moves are applied in stream order as
-extra writes.
+line (the ledger) and per bit position (``cell_profile``).  The leveler's own
+moves are applied in stream order as extra writes.
 
-Writes inside a chunk are processed in *rounds*: a round holds events that
-touch distinct lines, and every line's events keep their order, so each round
-is one vectorized step.
+Single-level cells with a scheme that has a compiled encoder take one
+compiled pass over the chunk's writes (:mod:`memsim.policy.bitops`).
+Otherwise writes inside a chunk are processed in *rounds*: a round holds
+events that touch distinct lines, and every line's events keep their order,
+so each round is one vectorized step.  Both give the same result, random
+draws included (``tests/test_write_schemes.py``).
 """
 from __future__ import annotations
 
