@@ -50,17 +50,21 @@ class WearLedger:
         p = np.asarray(phys_lines, dtype=np.int64).ravel()
         if p.size == 0:
             return
+        w = np.broadcast_to(np.asarray(cells, dtype=np.float64), p.shape)
+        if p.size * 2 >= self.n_lines:
+            self.cells[i] += np.bincount(p, weights=w, minlength=self.n_lines)
+            return
         if p.min() < 0 or p.max() >= self.n_lines:
             raise IndexError(f"wear ledger: line outside 0..{self.n_lines - 1}")
-        w = np.ascontiguousarray(np.broadcast_to(np.asarray(cells, dtype=np.float64), p.shape))
+        w = np.ascontiguousarray(w)
         if p.size * 8 >= self.n_lines:
-            # Per-line sums first, then one addition per line (the float
-            # rounding of row += bincount(...)), touching only the lines named.
+            # As row += bincount(...): per-line sums first, then one addition
+            # per line (the same float rounding), touching only the lines named.
             if self._scratch is None:
                 self._scratch = np.zeros(self.n_lines)
             _add_summed(self.cells[i], p, w, self._scratch)
         else:
-            _add_each(self.cells[i], p, w)    # np.add.at: one addition per entry, in order
+            _add_each(self.cells[i], p, w)    # as np.add.at: one addition per entry, in order
 
     def line_cells(self) -> np.ndarray:
         """Cells programmed per line, all causes (a new array)."""
