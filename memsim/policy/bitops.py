@@ -16,9 +16,9 @@ of 8 (:func:`supported`).  Kernel codes of the schemes: :data:`FULL`,
 
 The wear profile (cells programmed per bit position, summed over lines) is
 counted from each write's mask of programmed cells, kept in a block of
-:data:`BLOCK` masks and added word by word into bit-sliced counters
-(:func:`count_masks`), a few word operations per write instead of one
-addition per cell.
+:data:`BLOCK` masks and added word by word into bit-sliced counters through
+a carry-save adder tree (:func:`count_masks`), a few word operations per
+write instead of one addition per cell.
 """
 from __future__ import annotations
 
@@ -46,8 +46,8 @@ def popcount64(x):
 
 
 @njit(cache=True)
-def _spill(profile, w, p0, p1, p2, p3, p4, p5, p6, p7):
-    """Add the 8-plane bit-sliced counts of word ``w`` to ``profile``.
+def _spill(profile, w, weight, p0, p1, p2, p3, p4, p5, p6, p7):
+    """Add ``weight`` times the 8-plane bit-sliced counts of word ``w`` to ``profile``.
 
     Native little-endian word: bit q is bit (q % 8) of byte 8 w + q // 8,
     which np.unpackbits lists most significant first.
@@ -57,27 +57,52 @@ def _spill(profile, w, p0, p1, p2, p3, p4, p5, p6, p7):
         base = 64 * w + 8 * byte
         for k in range(8):
             q = np.uint64(8 * byte + 7 - k)
-            profile[base + k] += (np.int64((p0 >> q) & one) + 2 * np.int64((p1 >> q) & one)
-                                  + 4 * np.int64((p2 >> q) & one) + 8 * np.int64((p3 >> q) & one)
-                                  + 16 * np.int64((p4 >> q) & one) + 32 * np.int64((p5 >> q) & one)
-                                  + 64 * np.int64((p6 >> q) & one) + 128 * np.int64((p7 >> q) & one))
+            profile[base + k] += weight * (
+                np.int64((p0 >> q) & one) + 2 * np.int64((p1 >> q) & one)
+                + 4 * np.int64((p2 >> q) & one) + 8 * np.int64((p3 >> q) & one)
+                + 16 * np.int64((p4 >> q) & one) + 32 * np.int64((p5 >> q) & one)
+                + 64 * np.int64((p6 >> q) & one) + 128 * np.int64((p7 >> q) & one))
+
+
+@njit(cache=True)
+def _csa(a, b, c):
+    """Carry-save adder on bit vectors: (carries, sums) of a + b + c per bit."""
+    u = a ^ b
+    return (a & b) | (u & c), u ^ c
 
 
 @njit(cache=True)
 def count_masks(masks, m, profile):
     """``profile[:bits] += unpackbits(masks[:m]).sum(axis=0)`` for rows of native words.
 
-    Word by word, the masks are added into eight bit-sliced counters held
-    in registers (a ripple carry without branches: a data-dependent early
-    exit costs more in mispredictions than it saves), spilled to
-    ``profile`` before they can overflow.
+    Word by word, 16 masks at a time go through a carry-save adder tree
+    (Harley-Seal) into bit-sliced counters of weight 1, 2, 4 and 8; each
+    group's carry of weight 16 is added into eight more bit-sliced counters
+    (a ripple carry without branches), spilled to ``profile`` before they
+    can overflow.  The last masks (fewer than 16) are rippled one by one.
     """
     z = np.uint64(0)
     for w in range(masks.shape[1]):
+        ones = twos = fours = eights = z
         p0 = p1 = p2 = p3 = p4 = p5 = p6 = p7 = z
-        cnt = 0
-        for e in range(m):
-            c = masks[e, w]
+        groups = 0
+        i = 0
+        while i + 16 <= m:
+            twos_a, ones = _csa(ones, masks[i, w], masks[i + 1, w])
+            twos_b, ones = _csa(ones, masks[i + 2, w], masks[i + 3, w])
+            fours_a, twos = _csa(twos, twos_a, twos_b)
+            twos_a, ones = _csa(ones, masks[i + 4, w], masks[i + 5, w])
+            twos_b, ones = _csa(ones, masks[i + 6, w], masks[i + 7, w])
+            fours_b, twos = _csa(twos, twos_a, twos_b)
+            eights_a, fours = _csa(fours, fours_a, fours_b)
+            twos_a, ones = _csa(ones, masks[i + 8, w], masks[i + 9, w])
+            twos_b, ones = _csa(ones, masks[i + 10, w], masks[i + 11, w])
+            fours_a, twos = _csa(twos, twos_a, twos_b)
+            twos_a, ones = _csa(ones, masks[i + 12, w], masks[i + 13, w])
+            twos_b, ones = _csa(ones, masks[i + 14, w], masks[i + 15, w])
+            fours_b, twos = _csa(twos, twos_a, twos_b)
+            eights_b, fours = _csa(fours, fours_a, fours_b)
+            c, eights = _csa(eights, eights_a, eights_b)
             t = p0 & c
             p0 ^= c
             c = t
@@ -100,12 +125,28 @@ def count_masks(masks, m, profile):
             p6 ^= c
             c = t
             p7 ^= c
-            cnt += 1
-            if cnt == 255:
-                _spill(profile, w, p0, p1, p2, p3, p4, p5, p6, p7)
+            groups += 1
+            if groups == 255:
+                _spill(profile, w, 16, p0, p1, p2, p3, p4, p5, p6, p7)
                 p0 = p1 = p2 = p3 = p4 = p5 = p6 = p7 = z
-                cnt = 0
-        _spill(profile, w, p0, p1, p2, p3, p4, p5, p6, p7)
+                groups = 0
+            i += 16
+        _spill(profile, w, 16, p0, p1, p2, p3, p4, p5, p6, p7)
+        p0 = p1 = p2 = p3 = z
+        for e in range(i, m):           # at most 15: four planes hold them
+            c = masks[e, w]
+            t = p0 & c
+            p0 ^= c
+            c = t
+            t = p1 & c
+            p1 ^= c
+            c = t
+            t = p2 & c
+            p2 ^= c
+            c = t
+            p3 ^= c
+        _spill(profile, w, 1, p0, p1, p2, p3, z, z, z, z)
+        _spill(profile, w, 1, ones, twos, fours, eights, z, z, z, z)
 
 
 @njit(cache=True)
