@@ -154,3 +154,24 @@ def test_short_timing_run_gives_null_lifetime_with_a_note() -> None:
     # Long enough on few lines: an estimate, and no note.
     ok = simulate(None, array__lines=64, workload__requests=60000, workload__read_fraction=0.0).summary
     assert ok["lifetime_years"] > 0 and ok["lifetime_note"] is None
+
+
+@pytest.mark.parametrize("size", [5, 300, 700, 5000])
+def test_add_rounds_as_add_at_or_bincount(size):
+    # Small batches add entry by entry (np.add.at), large ones per-line sums
+    # first (row += np.bincount): the ledger must keep exactly that rounding.
+    rng = np.random.default_rng(size)
+    led = WearLedger(1000)
+    start = rng.random(1000) * 1e6
+    led.cells[0] = start
+    p = rng.integers(0, 1000, size)
+    w = rng.random(size) * 1e-3
+    led.add(CAUSES[0], p, w)
+    expect = start.copy()
+    if size * 8 >= 1000:
+        expect += np.bincount(p, weights=w, minlength=1000)
+    else:
+        np.add.at(expect, p, w)
+    np.testing.assert_array_equal(led.cells[0], expect)
+    with pytest.raises(IndexError):
+        led.add(CAUSES[0], np.array([1000]), 1.0)

@@ -16,6 +16,7 @@ from collections import deque
 from collections.abc import Iterable
 
 import numpy as np
+from numba import njit
 
 from memsim.engine import kernel as K
 from memsim.engine.fast_steps import AgentSteps, grown_queues
@@ -184,27 +185,30 @@ class FastEngine(AgentSteps, TimingEngine):
     @staticmethod
     def _columns(ops: OpColumns) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
         nr, nw = ops.n_reads, ops.w_req.size
-        o = ops.order
-        c_f = np.zeros((nr + nw, 5))
-        c_f[nr:, 0], c_f[nr:, 1], c_f[nr:, 2], c_f[nr:, 3] = ops.service, ops.current, ops.pre, ops.pj
+        c_bank = np.empty(nr + nw, np.int64)
+        c_f = np.empty((nr + nw, 5))
         c_i = np.zeros((nr + nw, K.N_SI), np.int64)
-        c_i[:nr, K.SI_READ] = 1
-        c_i[:, K.SI_REQ] = np.concatenate([ops.r_idx, ops.w_req])
-        c_i[:, K.SI_CH] = np.concatenate([ops.r_ch, ops.w_ch])
-        c_i[:nr, K.SI_ROW] = ops.r_row
-        c_i[nr:, K.SI_ROW] = -1
-        c_i[:, K.SI_PHYS] = np.concatenate([ops.r_phys, ops.w_phys])
-        c_i[:nr, K.SI_BUS] = 1
-        c_i[nr:, K.SI_BUS] = ops.uses_bus
-        c_i[nr:, K.SI_RR], c_i[nr:, K.SI_SR], c_i[nr:, K.SI_CELLS] = ops.rr, ops.sr, ops.cells
-        c_i[nr:, K.SI_NSET], c_i[nr:, K.SI_NRESET] = ops.n_set, ops.n_reset
+        i64 = np.int64
+        _fill_columns(np.asarray(ops.order, i64), nr,
+                      np.asarray(ops.r_idx, i64), np.asarray(ops.r_ch, i64), np.asarray(ops.r_bank, i64),
+                      np.asarray(ops.r_row, i64), np.asarray(ops.r_phys, i64),
+                      np.asarray(ops.w_req, i64), np.asarray(ops.w_ch, i64), np.asarray(ops.w_bank, i64),
+                      np.asarray(ops.w_phys, i64), np.asarray(ops.uses_bus, i64),
+                      np.asarray(ops.rr, i64), np.asarray(ops.sr, i64), np.asarray(ops.cells, i64),
+                      np.asarray(ops.n_set, i64), np.asarray(ops.n_reset, i64),
+                      np.asarray(ops.service, float), np.asarray(ops.current, float),
+                      np.asarray(ops.pre, float), np.asarray(ops.pj, float), c_bank, c_f, c_i)
         if ops.alt is not None:
             # The fast form (out of place with block erase, or into a line a hint
             # pre-programmed), taken if the bank finds it so at service.
-            c_f[nr:, 4], c_i[nr:, K.SI_OOP_SET], c_i[nr:, K.SI_OOP_RESET] = ops.alt
-        bank = np.concatenate([ops.r_bank, ops.w_bank]).astype(np.int64)
-        return (np.ascontiguousarray(ops.t, dtype=float), bank[o], np.ascontiguousarray(c_f[o]),
-                np.ascontiguousarray(c_i[o]))
+            o = np.asarray(ops.order, i64)
+            w = o >= nr
+            j = o[w] - nr
+            alt_pj, alt_set, alt_reset = ops.alt
+            c_f[w, 4] = np.asarray(alt_pj, float)[j]
+            c_i[w, K.SI_OOP_SET] = np.asarray(alt_set, i64)[j]
+            c_i[w, K.SI_OOP_RESET] = np.asarray(alt_reset, i64)[j]
+        return np.ascontiguousarray(ops.t, dtype=float), c_bank, c_f, c_i
 
     def _call(self, cols, base: int) -> int:
         fst, ist = self.fst, self.ist
@@ -384,6 +388,49 @@ class FastEngine(AgentSteps, TimingEngine):
         if self.erase is not None:
             tot.erase_pj = self.erase.energy_pj
         return tot
+
+
+@njit(cache=True)
+def _fill_columns(order, nr, r_idx, r_ch, r_bank, r_row, r_phys, w_req, w_ch, w_bank, w_phys, uses_bus,
+                  rr, sr, cells, n_set, n_reset, service, current, pre, pj, c_bank, c_f, c_i):
+    """The kernel's chunk columns in admission order (reads, then writes, permuted by ``order``)."""
+    for k in range(order.size):
+        j = order[k]
+        if j < nr:
+            c_bank[k] = r_bank[j]
+            for f in range(5):
+                c_f[k, f] = 0.0
+            c_i[k, K.SI_READ] = 1
+            c_i[k, K.SI_REQ] = r_idx[j]
+            c_i[k, K.SI_CH] = r_ch[j]
+            c_i[k, K.SI_ROW] = r_row[j]
+            c_i[k, K.SI_PHYS] = r_phys[j]
+            c_i[k, K.SI_BUS] = 1
+            c_i[k, K.SI_RR] = 0
+            c_i[k, K.SI_SR] = 0
+            c_i[k, K.SI_CELLS] = 0
+            c_i[k, K.SI_NSET] = 0
+            c_i[k, K.SI_NRESET] = 0
+        else:
+            j -= nr
+            c_bank[k] = w_bank[j]
+            c_f[k, 0] = service[j]
+            c_f[k, 1] = current[j]
+            c_f[k, 2] = pre[j]
+            c_f[k, 3] = pj[j]
+            c_f[k, 4] = 0.0
+            c_i[k, K.SI_READ] = 0
+            c_i[k, K.SI_REQ] = w_req[j]
+            c_i[k, K.SI_CH] = w_ch[j]
+            c_i[k, K.SI_ROW] = -1
+            c_i[k, K.SI_PHYS] = w_phys[j]
+            c_i[k, K.SI_BUS] = uses_bus[j]
+            c_i[k, K.SI_RR] = rr[j]
+            c_i[k, K.SI_SR] = sr[j]
+            c_i[k, K.SI_CELLS] = cells[j]
+            c_i[k, K.SI_NSET] = n_set[j]
+            c_i[k, K.SI_NRESET] = n_reset[j]
+
 
 def make_engine(cfg, source: Iterable[Chunk], path: WritePath, refresh: RefreshPlan | None = None,
                 rng: np.random.Generator | None = None) -> TimingEngine:

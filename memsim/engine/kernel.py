@@ -113,32 +113,47 @@ def _pop(ht, hs, hp, ist):
     return t0, p0
 
 
+# Ring buffers: head in [0, cap), count in [0, cap]; a compare instead of
+# a modulo (an integer division) on every queue operation.
 @njit(cache=True)
 def _q_push(q, qh, qn, b, v):
     cap = q.shape[1]
-    q[b, (qh[b] + qn[b]) % cap] = v
+    i = qh[b] + qn[b]
+    if i >= cap:
+        i -= cap
+    q[b, i] = v
     qn[b] += 1
 
 
 @njit(cache=True)
 def _q_push_front(q, qh, qn, b, v):
-    cap = q.shape[1]
-    qh[b] = (qh[b] - 1) % cap
-    q[b, qh[b]] = v
+    h = qh[b] - 1
+    if h < 0:
+        h += q.shape[1]
+    qh[b] = h
+    q[b, h] = v
     qn[b] += 1
 
 
 @njit(cache=True)
 def _q_pop(q, qh, qn, b):
-    v = q[b, qh[b]]
-    qh[b] = (qh[b] + 1) % q.shape[1]
+    h = qh[b]
+    v = q[b, h]
+    h += 1
+    if h >= q.shape[1]:
+        h = 0
+    qh[b] = h
     qn[b] -= 1
     return v
 
 
 @njit(cache=True)
 def _q_at(q, qh, b, k):
-    return q[b, (qh[b] + k) % q.shape[1]]
+    i = qh[b] + k
+    cap = q.shape[1]
+    if i >= cap:
+        i -= cap
+    return q[b, i]
 
 
 @njit(cache=True)

@@ -15,6 +15,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
+from numba import njit
 
 from memsim.engine.rows import count_row_hits
 from memsim.workload.chunk import HINT, READ, Chunk
@@ -140,7 +141,11 @@ def prepare_ops(eng, chunk: Chunk) -> OpColumns:
     w_req = np.where(moves, -1, w_idx[np.clip(wb.user, 0, None)] if w_idx.size else 0)
     w_pos = w_idx[wb.after] if w_idx.size else np.empty(0, np.int64)
     pos = np.concatenate([r_idx, w_pos])
-    order = np.argsort(pos, kind="stable")
+    w_pos = np.asarray(w_pos, np.int64)
+    if w_pos.size < 2 or bool((w_pos[1:] >= w_pos[:-1]).all()):
+        order = _merge_order(r_idx, w_pos)      # both sorted: a merge, not a sort
+    else:
+        order = np.argsort(pos, kind="stable")
     alt = None
     if eng.out_of_place:
         # Block erase: the cost of the out-of-place write (only the pulse
@@ -162,3 +167,19 @@ def prepare_ops(eng, chunk: Chunk) -> OpColumns:
         service=service, uses_bus=~moves, current=current, pre=pre, rr=rr, sr=sr, pj=pj,
         cells=cells, n_set=wb.n_set, n_reset=wb.n_reset, order=order,
         t=chunk.time_ns[pos[order]], alt=alt)
+
+
+@njit(cache=True)
+def _merge_order(a, b):
+    """``np.argsort(np.concatenate([a, b]), kind="stable")`` for sorted ``a`` and ``b``."""
+    na, nb = a.size, b.size
+    out = np.empty(na + nb, np.int64)
+    i = j = 0
+    for k in range(na + nb):
+        if j >= nb or (i < na and a[i] <= b[j]):
+            out[k] = i
+            i += 1
+        else:
+            out[k] = na + j
+            j += 1
+    return out

@@ -13,21 +13,23 @@ it must count hits where it serves them instead.
 from __future__ import annotations
 
 import numpy as np
+from numba import njit
+
+
+@njit(cache=True)
+def _count(open_rows, bank, row):
+    hits = 0
+    for i in range(bank.size):
+        b = bank[i]
+        r = row[i]
+        if r >= 0 and r == open_rows[b]:
+            hits += 1
+        open_rows[b] = r
+    return hits
 
 
 def count_row_hits(open_rows: np.ndarray, bank: np.ndarray, row: np.ndarray) -> int:
     """Hits among reads given in arrival order; ``open_rows`` (per bank, -1 = none) is updated."""
     if bank.size == 0:
         return 0
-    order = np.argsort(bank, kind="stable")
-    b, r = bank[order], row[order]
-    prev = np.empty_like(r)
-    prev[1:] = r[:-1]
-    first = np.ones(b.size, bool)
-    first[1:] = b[1:] != b[:-1]
-    prev[first] = open_rows[b[first]]
-    hits = int(np.count_nonzero((r >= 0) & (r == prev)))
-    last = np.ones(b.size, bool)
-    last[:-1] = b[1:] != b[:-1]
-    open_rows[b[last]] = r[last]
-    return hits
+    return int(_count(open_rows, np.asarray(bank, np.int64), np.asarray(row, np.int64)))

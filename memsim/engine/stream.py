@@ -39,43 +39,52 @@ TABLE_BINS_PER_DECADE = 20
 
 
 @njit(cache=True)
-def record(counts, fs, grid, gstep, op, arrival, finish):
-    """Count one completed request (op 0 read, 1 write)."""
-    lat = finish - arrival
-    if lat > 0.0:
-        i = int(math.floor(math.log10(lat) * BINS_PER_DECADE)) - LOG10_MIN * BINS_PER_DECADE
-        i = min(max(i, 0), NBINS - 1)
-    else:
-        i = 0
-    counts[op, i] += 1
-    fs[op, 0] += lat
-    if fs[op, 3] == 0.0:
-        fs[op, 1] = lat
-        fs[op, 2] = lat
-        fs[op, 3] = 1.0
-    else:
-        if lat < fs[op, 1]:
-            fs[op, 1] = lat
-        if lat > fs[op, 2]:
-            fs[op, 2] = lat
-    step = gstep[0]
-    while finish >= step * GRID:
-        # Coarsen: the new point m is the old point 2 m; an interval that
-        # starts at old index k starts at new index ceil(k / 2).
-        for m in range(1, GRID // 2 + 1):
-            grid[m] = grid[2 * m - 1] + grid[2 * m]
-        for m in range(GRID // 2 + 1, GRID + 1):
-            grid[m] = 0
-        step *= 2.0
-    gstep[0] = step
-    grid[int(math.ceil(arrival / step))] += 1
-    grid[int(math.ceil(finish / step))] -= 1
+def _coarsen(grid):
+    """Halve the grid's resolution: the new point m is the old point 2 m; an
+    interval that starts at old index k starts at new index ceil(k / 2)."""
+    for m in range(1, GRID // 2 + 1):
+        grid[m] = grid[2 * m - 1] + grid[2 * m]
+    for m in range(GRID // 2 + 1, GRID + 1):
+        grid[m] = 0
 
 
 @njit(cache=True)
 def record_many(counts, fs, grid, gstep, ops, arrival, finish):
+    """Count completed requests (op 0 read, 1 write), in the order given.
+
+    The grid step lives in a local for the whole batch: written back to
+    ``gstep`` once, it spares a reload after every store.
+    """
+    step = gstep[0]
+    limit = step * GRID
     for k in range(ops.size):
-        record(counts, fs, grid, gstep, ops[k], arrival[k], finish[k])
+        op = ops[k]
+        t0 = arrival[k]
+        t1 = finish[k]
+        lat = t1 - t0
+        if lat > 0.0:
+            i = int(math.floor(math.log10(lat) * BINS_PER_DECADE)) - LOG10_MIN * BINS_PER_DECADE
+            i = min(max(i, 0), NBINS - 1)
+        else:
+            i = 0
+        counts[op, i] += 1
+        fs[op, 0] += lat
+        if fs[op, 3] == 0.0:
+            fs[op, 1] = lat
+            fs[op, 2] = lat
+            fs[op, 3] = 1.0
+        else:
+            if lat < fs[op, 1]:
+                fs[op, 1] = lat
+            if lat > fs[op, 2]:
+                fs[op, 2] = lat
+        while t1 >= limit:
+            _coarsen(grid)
+            step *= 2.0
+            limit = step * GRID
+        grid[int(math.ceil(t0 / step))] += 1
+        grid[int(math.ceil(t1 / step))] -= 1
+    gstep[0] = step
 
 
 class LatencyStream:

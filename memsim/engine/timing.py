@@ -31,6 +31,7 @@ from memsim.engine.erase_agent import EraseAgent
 from memsim.engine.ops import prepare_ops
 from memsim.engine.refresh_agent import REFRESH, URGENT, RefreshAgent
 from memsim.engine.stream import LatencyStream
+from memsim.policy.bitops import add_profile
 from memsim.policy.refresh import RefreshPlan
 from memsim.policy.write.bits import popcount_rows
 from memsim.policy.writepath import WritePath
@@ -687,8 +688,8 @@ class TimingEngine:
             energy = n_reset * cell.reset_pj
             cells = n_reset
             current = np.minimum(n_reset, cell.cells_per_round(budget)[0]) * cell.reset_ua
-            if path.cell_wear is not None:
-                path.cell_wear[lines, :self.line_bits] += np.unpackbits(~stored, axis=1)
+            if path.cell_profile is not None:
+                add_profile(path.cell_profile, ~stored)
         np.add.at(path.line_writes, lines, 1)
         path.ledger.add("refresh", lines if self.erase is None else self.erase.where(lines), cells)
         return program + cell.read_ns, energy + read_pj, cells, current

@@ -54,8 +54,8 @@ def pooled_profile(programs: np.ndarray, writes: float, groups: list[slice]) -> 
 
 def profile_cells(path: WritePath) -> int:
     """Cells per line: data and flag cells; for multi-level cells, bits / bits per cell."""
-    if path.cell_wear is not None:
-        return int(path.cell_wear.shape[1])
+    if path.cell_profile is not None:
+        return int(path.cell_profile.size)
     if path.mlc is not None:
         return path.mlc.cell.cells_per_line(path.line_bits)
     return path.line_bits
@@ -67,7 +67,7 @@ def path_profile(path: WritePath) -> float | np.ndarray:
     Multi-level cells are counted in pulses per cell (may exceed 1).
     """
     writes = float(path.line_writes.sum())
-    if path.cell_wear is None:
+    if path.cell_profile is None:
         return float(path.line_cells.sum()) / max(writes, 1.0) / profile_cells(path)
     bits = path.line_bits
     return pooled_profile(path.bit_profile(), writes, [slice(0, bits), slice(bits, None)])

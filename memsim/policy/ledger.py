@@ -12,6 +12,7 @@ parts still sum to the total.
 from __future__ import annotations
 
 import numpy as np
+from numba import njit
 
 CAUSES = ("user", "move", "refresh", "cancelled", "preset", "erase", "meta")
 _INDEX = {c: i for i, c in enumerate(CAUSES)}
@@ -29,6 +30,7 @@ class WearLedger:
         self.n_lines = int(n_lines)
         self.cells = np.zeros((len(CAUSES), self.n_lines), dtype=np.float64)
         self.unplaced = np.zeros(len(CAUSES), dtype=np.float64)
+        self._scratch: np.ndarray | None = None     # zeros between calls
 
     def add(self, cause: str, phys_lines: int | np.ndarray | None,
             cells: float | np.ndarray) -> None:
@@ -49,10 +51,20 @@ class WearLedger:
         if p.size == 0:
             return
         w = np.broadcast_to(np.asarray(cells, dtype=np.float64), p.shape)
-        if p.size * 8 >= self.n_lines:
+        if p.size * 2 >= self.n_lines:
             self.cells[i] += np.bincount(p, weights=w, minlength=self.n_lines)
+            return
+        if p.min() < 0 or p.max() >= self.n_lines:
+            raise IndexError(f"wear ledger: line outside 0..{self.n_lines - 1}")
+        w = np.ascontiguousarray(w)
+        if p.size * 8 >= self.n_lines:
+            # As row += bincount(...): per-line sums first, then one addition
+            # per line (the same float rounding), touching only the lines named.
+            if self._scratch is None:
+                self._scratch = np.zeros(self.n_lines)
+            _add_summed(self.cells[i], p, w, self._scratch)
         else:
-            np.add.at(self.cells[i], p, w)
+            _add_each(self.cells[i], p, w)    # as np.add.at: one addition per entry, in order
 
     def line_cells(self) -> np.ndarray:
         """Cells programmed per line, all causes (a new array)."""
@@ -72,3 +84,19 @@ class WearLedger:
         out = {"wear_cells_total": float(sum(parts.values()))}
         out.update({f"wear_cells_{c}": v for c, v in parts.items()})
         return out
+
+
+@njit(cache=True)
+def _add_summed(row, p, w, scratch):
+    for k in range(p.size):
+        scratch[p[k]] += w[k]
+    for k in range(p.size):
+        q = p[k]
+        row[q] += scratch[q]
+        scratch[q] = 0.0
+
+
+@njit(cache=True)
+def _add_each(row, p, w):
+    for k in range(p.size):
+        row[p[k]] += w[k]

@@ -4,12 +4,15 @@ Both engines feed user line writes, chunk by chunk and in the order the
 controller accepts them, through one :class:`WritePath`.  It keeps the stored
 bits (and flag cells) of every modeled physical line, so the SET and RESET
 counts of each write come from comparing real bits, and it counts wear per
-line and per cell.  The leveler's own moves are applied in stream order as
-extra writes.
+line (the ledger) and per bit position (``cell_profile``).  The leveler's own
+moves are applied in stream order as extra writes.
 
-Writes inside a chunk are processed in *rounds*: a round holds events that
-touch distinct lines, and every line's events keep their order, so each round
-is one vectorized step.
+Single-level cells with a scheme that has a compiled encoder take one
+compiled pass over the chunk's writes (:mod:`memsim.policy.bitops`).
+Otherwise writes inside a chunk are processed in *rounds*: a round holds
+events that touch distinct lines, and every line's events keep their order,
+so each round is one vectorized step.  Both give the same result, random
+draws included (``tests/test_write_schemes.py``).
 """
 from __future__ import annotations
 
@@ -17,10 +20,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from memsim.policy import bitops
 from memsim.policy.ledger import WearLedger
 from memsim.policy.leveling.base import Leveler
 from memsim.policy.write.base import WriteScheme
-from memsim.policy.write.bits import add_cell_wear, popcount_rows
+from memsim.policy.write.bits import popcount_rows
 from memsim.workload.content import DataModel
 
 
@@ -110,10 +114,14 @@ class WritePath:
         # True when the engine decides a user write's cost at service (block
         # erase, hints) and records it in the ledger then.
         self.defer_user_wear = False
-        # Per-cell counters of SLC programs (for MLC, wear is counted in
-        # pulses per line, ``line_cells``).
-        self.cell_wear = (np.zeros((n, self.line_bits + scheme.flag_cells), dtype=np.uint32)
-                          if cell_wear and mlc is None else None)
+        # SLC programs per cell position (data cells, then flag cells),
+        # summed over lines: the bit profile lifetime reads.  For MLC, wear
+        # is counted in pulses per line, ``line_cells``.
+        self.cell_profile = (np.zeros(self.line_bits + scheme.flag_cells, dtype=np.int64)
+                             if cell_wear and mlc is None else None)
+        # False: apply chunks round by round with numpy (the compiled
+        # path's reference in the tests).
+        self.use_kernels = True
         self.user_writes = 0
         self.move_writes = 0
         self.meta_writes = 0
@@ -150,12 +158,74 @@ class WritePath:
 
         if data is None and self.data.kind != "flip":
             data = self.data.new(self.rng, np.empty((n, self.scheme.line_bytes), np.uint8))
-        n_set = np.zeros(n + m, dtype=np.int64)
-        n_reset = np.zeros(n + m, dtype=np.int64)
-        ones = np.zeros(n + m, dtype=np.int64)
-        mlc_ns = np.zeros(n + m) if self.mlc is not None else None
-        mlc_pj = np.zeros(n + m) if self.mlc is not None else None
         group = np.where(user < 0, after, -1)
+        if self._compiled():
+            n_set, n_reset, ones = self._apply_compiled(dst, src, group, user, data)
+            mlc_ns = mlc_pj = None
+        else:
+            n_set, n_reset, ones, mlc_ns, mlc_pj = self._apply_rounds(dst, src, group, user, data)
+        self.user_writes += n
+        self.move_writes += m
+        self.meta_writes += mv.cost_writes
+        if mv.cost_writes:
+            # Table lines live outside the modeled lines; a full-line write each.
+            self.ledger.add("meta", None, mv.cost_writes * (self.line_bits + self.scheme.flag_cells))
+        return WriteBatch(dst, n_set, n_reset, user, after, mv.cost_writes, mlc_ns, mlc_pj, ones)
+
+    def _compiled(self) -> bool:
+        """True when :mod:`memsim.policy.bitops` handles this path (SLC, a known scheme)."""
+        return (self.use_kernels and self.mlc is None and self.scheme.kernel is not None
+                and bitops.supported(self.scheme.line_bytes, self.scheme.word_bits)
+                and self.stored.flags.c_contiguous and self.flags.flags.c_contiguous)
+
+    def _apply_compiled(self, dst: np.ndarray, src: np.ndarray, group: np.ndarray, user: np.ndarray,
+                        data: np.ndarray | None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """All events of a chunk in one compiled pass (same result as :meth:`_apply_rounds`)."""
+        k = dst.size
+        n_set = np.zeros(k, dtype=np.int64)
+        n_reset = np.zeros(k, dtype=np.int64)
+        ones = np.zeros(k, dtype=np.int64)
+        is_user = user >= 0
+        if data is None:
+            # Flip model: the masks are drawn round by round, as the round
+            # path draws them, so both paths take the same random numbers.
+            content, cidx = self._flip_masks(dst, src, group, is_user)
+        else:
+            content, cidx = data, np.maximum(user, 0)
+        content = np.ascontiguousarray(content, dtype=np.uint8).view(np.uint64)
+        profile = self.cell_profile if self.cell_profile is not None else np.zeros(0, np.int64)
+        bitops.write_events(self.scheme.kernel, self.scheme.word_bits, self.stored.view(np.uint64),
+                            self.flags, dst, src, group, content, cidx, data is None,
+                            n_set, n_reset, ones, self.line_writes, profile)
+        self._count(dst, is_user, n_set + n_reset)
+        return n_set, n_reset, ones
+
+    def _flip_masks(self, dst: np.ndarray, src: np.ndarray, group: np.ndarray,
+                    is_user: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Flip-model masks of the user events, drawn in round order; (masks, row per event)."""
+        rounds = assign_rounds(dst, src, group)
+        by_round = np.argsort(rounds, kind="stable")
+        ue = by_round[is_user[by_round]]
+        cidx = np.zeros(dst.size, dtype=np.int64)
+        cidx[ue] = np.arange(ue.size)
+        counts = np.bincount(rounds[ue], minlength=1) if ue.size else np.zeros(0, np.int64)
+        parts = [self.data.flip_mask(self.rng, int(c)) for c in counts if c]
+        lb = self.scheme.line_bytes
+        return (np.concatenate(parts) if parts else np.zeros((1, lb), np.uint8)), cidx
+
+    def _apply_rounds(self, dst: np.ndarray, src: np.ndarray, group: np.ndarray, user: np.ndarray,
+                      data: np.ndarray | None):
+        """Events round by round with numpy: (SET, RESET, stored 1 bits, MLC ns, MLC pJ) per event.
+
+        Multi-level cells take this path; it is also the reference the
+        compiled path is tested against.
+        """
+        k = dst.size
+        n_set = np.zeros(k, dtype=np.int64)
+        n_reset = np.zeros(k, dtype=np.int64)
+        ones = np.zeros(k, dtype=np.int64)
+        mlc_ns = np.zeros(k) if self.mlc is not None else None
+        mlc_pj = np.zeros(k) if self.mlc is not None else None
         rounds = assign_rounds(dst, src, group)
         by_round = np.argsort(rounds, kind="stable")
         bounds = np.searchsorted(rounds[by_round], np.arange(rounds.max(initial=-1) + 2))
@@ -188,15 +258,10 @@ class WritePath:
                 self._count(d, is_user, cost.pulses)
                 continue
             self._count(d, is_user, ns + nr)
-            if self.cell_wear is not None:
-                add_cell_wear(self.cell_wear, d, enc.set_mask | enc.reset_mask, enc.flag_set | enc.flag_reset)
-        self.user_writes += n
-        self.move_writes += m
-        self.meta_writes += mv.cost_writes
-        if mv.cost_writes:
-            # Table lines live outside the modeled lines; a full-line write each.
-            self.ledger.add("meta", None, mv.cost_writes * (self.line_bits + self.scheme.flag_cells))
-        return WriteBatch(dst, n_set, n_reset, user, after, mv.cost_writes, mlc_ns, mlc_pj, ones)
+            if self.cell_profile is not None:
+                bitops.add_profile(self.cell_profile, enc.set_mask | enc.reset_mask)
+                self.cell_profile[self.line_bits:] += (enc.flag_set | enc.flag_reset).sum(axis=0)
+        return n_set, n_reset, ones, mlc_ns, mlc_pj
 
     def _count(self, lines: np.ndarray, is_user: np.ndarray, cells: np.ndarray) -> None:
         if not self.defer_user_wear:
@@ -205,6 +270,6 @@ class WritePath:
 
     def bit_profile(self) -> np.ndarray:
         """Programs per bit position (data cells then flag cells), summed over lines."""
-        if self.cell_wear is None:
+        if self.cell_profile is None:
             raise ValueError("cell wear counters are off")
-        return self.cell_wear.sum(axis=0, dtype=np.int64)
+        return self.cell_profile.copy()

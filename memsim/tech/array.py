@@ -73,13 +73,13 @@ class AddressMap:
             if self.bank_hash:
                 bank = self._hash(bank, row)
             return channel, channel * self.banks + bank, row
-        channel = phys % self.channels
-        rest = phys // self.channels
-        bank = rest % self.banks
-        in_bank = rest // self.banks          # line index inside its bank
+        channel = _mod(phys, self.channels)
+        rest = _div(phys, self.channels)
+        bank = _mod(rest, self.banks)
+        in_bank = _div(rest, self.banks)          # line index inside its bank
         if self.bank_hash:
             bank = self._hash(bank, in_bank)
-        row = in_bank // self.row_lines if self.row_lines else np.full_like(phys, -1)
+        row = _div(in_bank, self.row_lines) if self.row_lines else np.full_like(phys, -1)
         return channel, channel * self.banks + bank, row
 
     def address(self, phys: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
@@ -96,3 +96,16 @@ class AddressMap:
             in_bank = phys // self.channels // self.banks
             col = in_bank % self.row_lines if self.row_lines else in_bank
         return channel, bank, row, col
+
+
+# Floor division and modulo by a power of two are a shift and a mask (the
+# same values as // and % for every int64, negative ones included) and cost
+# far less than an integer division per element.
+def _div(x: np.ndarray, d: int) -> np.ndarray:
+    d = int(d)
+    return x >> (d.bit_length() - 1) if d > 0 and d & (d - 1) == 0 else x // d
+
+
+def _mod(x: np.ndarray, d: int) -> np.ndarray:
+    d = int(d)
+    return x & (d - 1) if d > 0 and d & (d - 1) == 0 else x % d

@@ -37,8 +37,12 @@ class DataModel:
         """New logical content for lines whose current content is ``old``."""
         n = old.shape[0]
         if self.kind == "flip":
-            return old ^ _bernoulli_lines(rng, n, self.line_bytes, self.flip_fraction)
+            return old ^ self.flip_mask(rng, n)
         return _bernoulli_lines(rng, n, self.line_bytes, self.p_one)
+
+    def flip_mask(self, rng: np.random.Generator, n: int) -> np.ndarray:
+        """The bits ``n`` writes of the flip model invert (what :meth:`new` XORs in)."""
+        return _bernoulli_lines(rng, n, self.line_bytes, self.flip_fraction)
 
     def expected_changed_fraction(self) -> float:
         """Expected share of bits that differ between old and new content.

@@ -44,6 +44,7 @@ class WriteScheme:
     name = ""
     pre_read = False       # must the old content be read before programming?
     out_of_place = False   # placed by an erase-block pool instead of in place
+    kernel: int | None = None   # code of the compiled encoder (memsim.policy.bitops), if any
 
     def __init__(self, line_bytes: int, word_bits: int = 32) -> None:
         self.line_bytes = line_bytes

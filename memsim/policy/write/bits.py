@@ -2,7 +2,6 @@
 from __future__ import annotations
 
 import numpy as np
-from numba import njit
 
 _WORD_DTYPES = {8: np.uint8, 16: np.uint16, 32: np.uint32, 64: np.uint64}
 
@@ -25,31 +24,3 @@ def random_lines(rng: np.random.Generator, n: int, line_bytes: int, p_one: float
         return rng.integers(0, 256, size=(n, line_bytes), dtype=np.uint8)
     bits = rng.random((n, line_bytes * 8)) < p_one
     return np.packbits(bits, axis=1)
-
-
-@njit(cache=True)
-def _add_cell_wear(cell_wear, rows, mask, flags):
-    # Skip unprogrammed bytes; add the bits of the others without branches.
-    nbits = mask.shape[1] * 8
-    for i in range(rows.size):
-        w = cell_wear[rows[i]]
-        for j in range(mask.shape[1]):
-            m = np.int64(mask[i, j])
-            if m == 0:
-                continue
-            for k in range(8):          # np.unpackbits order: most significant bit first
-                w[8 * j + k] += (m >> (7 - k)) & 1
-        for f in range(flags.shape[1]):
-            if flags[i, f]:
-                w[nbits + f] += 1
-
-
-def add_cell_wear(cell_wear: np.ndarray, rows: np.ndarray, mask: np.ndarray, flags: np.ndarray) -> None:
-    """``cell_wear[rows] += unpackbits(mask) ++ flags`` without the unpacked copy.
-
-    ``mask`` is packed (n, line_bytes) uint8 (bit order as ``np.unpackbits``),
-    ``flags`` (n, flag_cells) bool; rows may repeat.
-    """
-    _add_cell_wear(cell_wear, np.asarray(rows, np.int64), np.ascontiguousarray(mask, np.uint8),
-                   np.ascontiguousarray(flags).view(np.uint8) if flags.dtype == np.bool_
-                   else np.ascontiguousarray(flags, np.uint8))

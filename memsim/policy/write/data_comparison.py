@@ -9,11 +9,13 @@ from __future__ import annotations
 
 import numpy as np
 
+from memsim.policy import bitops
 from memsim.policy.write.base import Encoded, WriteScheme
 
 
 class DataComparison(WriteScheme):
     name = "data_comparison"
+    kernel = bitops.COMPARE
     pre_read = True
 
     def encode(self, old: np.ndarray, old_flags: np.ndarray, new: np.ndarray) -> Encoded:

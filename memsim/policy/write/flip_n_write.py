@@ -16,12 +16,14 @@ from __future__ import annotations
 
 import numpy as np
 
+from memsim.policy import bitops
 from memsim.policy.write.base import Encoded, WriteScheme
 from memsim.policy.write.bits import words
 
 
 class FlipNWrite(WriteScheme):
     name = "flip_n_write"
+    kernel = bitops.FLIP
     pre_read = True
 
     @property

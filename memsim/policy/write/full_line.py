@@ -3,6 +3,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from memsim.policy import bitops
 from memsim.policy.write.base import Encoded, WriteScheme
 
 
@@ -10,6 +11,7 @@ class FullLine(WriteScheme):
     """Program every cell: 1 bits get a SET pulse, 0 bits a RESET pulse."""
 
     name = "full_line"
+    kernel = bitops.FULL
     pre_read = False
 
     def encode(self, old: np.ndarray, old_flags: np.ndarray, new: np.ndarray) -> Encoded:
