@@ -13,8 +13,10 @@ from collections.abc import Iterable
 import numpy as np
 
 from memsim.engine import kernel as K
+from memsim.engine import kernel_sched as KS
 from memsim.engine.ops import OpColumns, prepare_ops
 from memsim.engine.refresh_agent import URGENT, RefreshAgent
+from memsim.engine.sched import settle
 from memsim.engine.stream import LatencyStream
 from memsim.engine.timing import TimingEngine, TimingTotals, price_energy
 from memsim.policy.refresh import RefreshPlan
@@ -138,8 +140,19 @@ class FastEngine(TimingEngine):
         self.op = np.zeros(cap, np.int8)
         self.n_req = 0
         self.stream = LatencyStream()
-        self.done_f = np.zeros((1 << 16, 2))
-        self.done_i = np.zeros((1 << 16, 2), np.int64)
+        # Queue policies (kernel_sched): one admission can complete a whole
+        # inbox, so the logs keep that many rows free while they are on.
+        pol = self.policy
+        self.xs = xs = np.zeros(KS.N_XS, np.int64)
+        xs[KS.X_ON], xs[KS.X_SCHED], xs[KS.X_CAP] = pol.active, pol.fr_fcfs, pol.cap
+        xs[KS.X_COALESCE], xs[KS.X_FORWARD], xs[KS.X_CAS] = pol.coalesce, pol.forward, self.cost_at_service
+        xs[KS.X_MARGIN] = rcap + wcap + 4 if pol.active else 0
+        self.xf = np.zeros(KS.N_XF)
+        self.xf[KS.XF_FORWARD_NS] = pol.forward_ns
+        n_log = max(1 << 16, 4 * int(xs[KS.X_MARGIN]))
+        self.alog = np.zeros((n_log if pol.coalesce else 1, 2), np.int64)
+        self.done_f = np.zeros((n_log, 2))
+        self.done_i = np.zeros((n_log, 2), np.int64)
         self.max_finish = 0.0
 
     def _grow_slots(self) -> None:
@@ -170,8 +183,7 @@ class FastEngine(TimingEngine):
         self.op[base:base + n] = ops.op
         return base
 
-    @staticmethod
-    def _columns(ops: OpColumns) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    def _columns(self, ops: OpColumns) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
         nr, nw = ops.n_reads, ops.w_req.size
         o = ops.order
         c_f = np.zeros((nr + nw, 4))
@@ -181,7 +193,8 @@ class FastEngine(TimingEngine):
         c_i[:, K.SI_REQ] = np.concatenate([ops.r_idx, ops.w_req])
         c_i[:, K.SI_CH] = np.concatenate([ops.r_ch, ops.w_ch])
         c_i[:nr, K.SI_ROW] = ops.r_row
-        c_i[nr:, K.SI_ROW] = -1
+        # User writes open rows only under FR-FCFS (see engine/sched.py).
+        c_i[nr:, K.SI_ROW] = ops.w_row if self.policy.fr_fcfs else -1
         c_i[:, K.SI_PHYS] = np.concatenate([ops.r_phys, ops.w_phys])
         c_i[:nr, K.SI_BUS] = 1
         c_i[nr:, K.SI_BUS] = ops.uses_bus
@@ -199,8 +212,10 @@ class FastEngine(TimingEngine):
                 self.sf, self.si, self.free, self.ib, self.ibh, self.ibn, self.rq, self.rqh, self.rqn,
                 self.wq, self.wqh, self.wqn, self.rpend, self.wpend, self.bus_free, self.pool_level,
                 self.pq, self.pqh, self.pqn, cols[0], cols[1], cols[2], cols[3], base,
-                self.done_f, self.done_i, self.clog, self.fqa, self.fqh, self.fqn, self.hlog)
+                self.done_f, self.done_i, self.clog, self.fqa, self.fqh, self.fqn, self.hlog,
+                self.xs, self.xf, self.alog)
             self._flush_cancel_wear()
+            self._flush_absorbed()
             self._flush_done()
             self._flush_handovers()
             if status == K.SCAN:
@@ -223,6 +238,15 @@ class FastEngine(TimingEngine):
         if n:
             self.cancel_wear(self.clog[:n, 0], self.clog[:n, 1])
             self.ist[K.CLOG_N] = 0
+
+    def _flush_absorbed(self) -> None:
+        """Replaced writes program no cells: take their wear back (the reference does it one by one)."""
+        n = int(self.xs[KS.X_ALOG_N])
+        if n:
+            phys, cells = self.alog[:n, 0], self.alog[:n, 1]
+            self.path.ledger.add("user", phys, -cells.astype(float))
+            np.subtract.at(self.path.line_writes, phys, 1)
+            self.xs[KS.X_ALOG_N] = 0
 
     def _flush_done(self) -> None:
         n = int(self.ist[K.DONE_N])
@@ -283,6 +307,14 @@ class FastEngine(TimingEngine):
         self.fqa = new
         self.fqh[:] = 0
 
+    def policy_counts(self) -> dict:
+        xs = self.xs
+        return {"row_hits": int(xs[KS.X_ROW_HITS]), "write_row_hits": int(xs[KS.X_WROW_HITS]),
+                "requests_passed": int(xs[KS.X_PASSED]), "max_times_passed": int(xs[KS.X_MAX_PASSED]),
+                "coalesced": int(xs[KS.X_COALESCED]), "forwarded": int(xs[KS.X_FORWARDED]),
+                "a_set": int(xs[KS.X_A_SET]), "a_reset": int(xs[KS.X_A_RESET]),
+                "a_pj": float(self.xf[KS.XF_A_PJ]), "a_pre": int(xs[KS.X_A_PRE])}
+
     def cancel_wear(self, phys: np.ndarray, wasted: np.ndarray) -> None:
         """Cells programmed by aborted writes (the reference counts them one by one)."""
         self.path.ledger.add("cancelled", phys, wasted)
@@ -336,6 +368,8 @@ class FastEngine(TimingEngine):
         tot.set_cells += int(ist[K.SET_CELLS])
         tot.reset_cells += int(ist[K.RESET_CELLS])
         tot.read_bits += int(ist[K.READ_BITS])
+        if self.policy.active:
+            settle(self, tot, self.policy_counts())
         price_energy(tot, self.cell)
         if self.agent is not None:
             self.agent.finish(tot.simulated_ns)
