@@ -85,6 +85,10 @@ configs = st.fixed_dictionaries({
     "controller.cancel_before": st.sampled_from([0.3, 0.75, 1.0]),
     "controller.write_pause": st.booleans(),
     "controller.hint_preset": st.booleans(),
+    "controller.scheduler": st.sampled_from(["fcfs", "fr_fcfs"]),
+    "controller.row_hit_cap": st.sampled_from([1, 4]),
+    "controller.coalesce_writes": st.booleans(),
+    "controller.forward_reads": st.booleans(),
     "write.scheme": st.sampled_from(["full_line", "data_comparison", "flip_n_write"]),
     "leveling.scheme": st.sampled_from(["none", "start_gap"]),
     "leveling.psi": st.sampled_from([3, 50]),
@@ -111,6 +115,7 @@ def _consistent(ov):
         # and hint pre-programming models SLC.
         ov["controller.write_pause"] = False
         ov["controller.hint_preset"] = False
+        ov["controller.coalesce_writes"] = False   # replaced writes' pulses are not kept for these cells
     if ov["leveling.scheme"] != "none":
         ov["controller.hint_preset"] = False     # leveler moves would undo a pre-programmed line
     return ov
@@ -147,6 +152,23 @@ FEATURES = {
     "everything": {"controller.write_cancel": True, "controller.write_pause": True,
                    "power.budget_ua": 30000.0, "array.row_lines": 8, "leveling.scheme": "start_gap",
                    "workload.arrival": "closed", "array.channels": 2},
+    # Queue policies on a small hot footprint, so rows repeat, writes meet queued
+    # writes to their line and reads find them.
+    "fr_fcfs": {"controller.scheduler": "fr_fcfs", "array.row_lines": 8, "workload.footprint_lines": 256},
+    "fr_fcfs, cap 1, drains": {"controller.scheduler": "fr_fcfs", "controller.row_hit_cap": 1,
+                               "array.row_lines": 4, "array.mapping": "row", "workload.footprint_lines": 128,
+                               "workload.interval_ns": 15.0, "workload.read_fraction": 0.5},
+    "coalescing": {"controller.coalesce_writes": True, "workload.footprint_lines": 64,
+                   "workload.interval_ns": 20.0},
+    "forwarding": {"controller.forward_reads": True, "workload.footprint_lines": 64, "workload.interval_ns": 20.0},
+    "queue policies, cancellation, closed": {
+        "controller.scheduler": "fr_fcfs", "controller.coalesce_writes": True, "controller.forward_reads": True,
+        "controller.write_cancel": True, "array.row_lines": 8, "workload.footprint_lines": 64,
+        "workload.arrival": "closed", "workload.outstanding": 12},
+    "queue policies, power, pausing": {
+        "controller.scheduler": "fr_fcfs", "controller.coalesce_writes": True, "controller.forward_reads": True,
+        "controller.write_pause": True, "power.budget_ua": 30000.0, "array.row_lines": 8,
+        "workload.footprint_lines": 64, "workload.interval_ns": 30.0},
 }
 
 
@@ -160,6 +182,12 @@ def test_each_feature_matches_reference(extra):
         assert ref.pauses > 0
     if "power.budget_ua" in extra and len(extra) <= 3:
         assert ref.power_wait_ns > 0
+    if extra.get("controller.scheduler") == "fr_fcfs" and not extra.get("controller.coalesce_writes"):
+        assert ref.requests_passed > 0 and ref.write_row_hits > 0
+    if extra.get("controller.coalesce_writes"):
+        assert ref.writes_coalesced > 0
+    if extra.get("controller.forward_reads"):
+        assert ref.reads_forwarded > 0
 
 
 # 2-bit cells that drift, 1024 modeled lines standing for 1e4 device lines
@@ -209,6 +237,12 @@ INACTIVE = {
     "cancellation without reads": {"controller.write_cancel": True, "controller.cancel_before": 1.0,
                                    "workload.read_fraction": 0.0},
     "pausing without reads": {"controller.write_pause": True, "workload.read_fraction": 0.0},
+    # Every line written once (sequential over more lines than requests): no
+    # write meets a queued write to its line, no read finds one.
+    "coalescing and forwarding, no repeated line": {
+        "controller.coalesce_writes": True, "controller.forward_reads": True, "workload.pattern": "sequential"},
+    # Without a row buffer there is no row hit to prefer: fr_fcfs is fcfs.
+    "fr_fcfs without a row buffer": {"controller.scheduler": "fr_fcfs", "array.row_lines": 0},
 }
 
 

@@ -244,8 +244,9 @@ class FastEngine(TimingEngine):
         n = int(self.xs[KS.X_ALOG_N])
         if n:
             phys, cells = self.alog[:n, 0], self.alog[:n, 1]
-            self.path.ledger.add("user", phys, -cells.astype(float))
             np.subtract.at(self.path.line_writes, phys, 1)
+            if not self.path.defer_user_wear:
+                self.path.ledger.add("user", phys, -cells.astype(float))
             self.xs[KS.X_ALOG_N] = 0
 
     def _flush_done(self) -> None:

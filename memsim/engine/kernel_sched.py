@@ -124,10 +124,11 @@ def enqueue(b, s, now, sf, si, free, rq, rqh, rqn, wq, wqh, wqn, done_f, done_i,
                 xs[X_A_RESET] += si[old, K.SI_NRESET]
                 xs[X_A_PRE] += 1 if sf[old, K.SF_PRE] > 0 else 0
                 xf[XF_A_PJ] += sf[old, K.SF_PJ]
-                n = xs[X_ALOG_N]
-                alog[n, 0] = si[old, K.SI_PHYS]
-                alog[n, 1] = si[old, K.SI_NSET] + si[old, K.SI_NRESET]
-                xs[X_ALOG_N] = n + 1
+            # The engine takes its wear back from the ledger if the write path recorded it.
+            n = xs[X_ALOG_N]
+            alog[n, 0] = si[old, K.SI_PHYS]
+            alog[n, 1] = si[old, K.SI_NSET] + si[old, K.SI_NRESET]
+            xs[X_ALOG_N] = n + 1
             _answer(old, sf[s, K.SF_T], now, sf, si, free, done_f, done_i, ist, ht, hs, hp, src)
     K._q_push(wq, wqh, wqn, b, s)
 

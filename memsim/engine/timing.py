@@ -309,11 +309,11 @@ class TimingEngine:
         old = pol.coalesce_into(b, entry, self.wq[b], not self.cost_at_service)
         if old is not None:
             o_prep, o_idx = old[0], old[1][0]
-            if not self.cost_at_service:
-                # The replaced write programs no cells: take its wear back.
-                f = o_prep.front
+            # The replaced write programs no cells: take back what the write path counted.
+            f = o_prep.front
+            self.path.line_writes[f[1][o_idx]] -= 1
+            if not self.path.defer_user_wear:
                 self.path.ledger.add("user", f[1][o_idx], -(f[2][o_idx] + f[3][o_idx]))
-                self.path.line_writes[f[1][o_idx]] -= 1
             prep, item = entry
             self._answer(o_prep, o_idx, prep.arrival[item[0]])
 
