@@ -4,7 +4,6 @@ identity for Poisson streams.  Both engines give the same numbers
 (tests/test_engine_diff.py), so the checks run on the compiled one."""
 import numpy as np
 import pytest
-
 from conftest import memsim_cli
 
 from memsim import simulate

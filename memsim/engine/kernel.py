@@ -193,6 +193,9 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
     SET cells, RESET cells).  ``base`` is the global index of the chunk's
     first request.  Completions go to ``done_f`` (arrival, finish) and
     ``done_i`` (request, op) in completion order; the caller empties them.
+    ``xs``, ``xf`` and ``alog`` belong to the queue policies
+    (:mod:`memsim.engine.kernel_sched`: FR-FCFS, coalescing, forwarding),
+    called only where a queue is filled or taken from.
     """
     nb = pi[P_NB]
     src = nb
