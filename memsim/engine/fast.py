@@ -144,6 +144,7 @@ class FastEngine(TimingEngine):
         # inbox, so the logs keep that many rows free while they are on.
         pol = self.policy
         self.xs = xs = np.zeros(KS.N_XS, np.int64)
+        KS.layout(xs, K)
         xs[KS.X_ON], xs[KS.X_SCHED], xs[KS.X_CAP] = pol.active, pol.fr_fcfs, pol.cap
         xs[KS.X_COALESCE], xs[KS.X_FORWARD], xs[KS.X_CAS] = pol.coalesce, pol.forward, self.cost_at_service
         xs[KS.X_MARGIN] = rcap + wcap + 4 if pol.active else 0

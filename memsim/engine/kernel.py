@@ -315,8 +315,8 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
                         return NEED_SLOTS
                     s = _fill(pos, fst[SRC_T], base, c_f, c_i, sf, si, free, ist)
                     if xs[KS.X_ON] != 0:
-                        KS.enqueue(b, s, now, sf, si, free, rq, rqh, rqn, wq, wqh, wqn, done_f, done_i, ist,
-                                   ht, hs, hp, src, xs, xf, alog)
+                        KS.enqueue(b, s, sf, si, free, rq, rqh, rqn, wq, wqh, wqn, done_f, done_i, ist, xs, xf, alog)
+                        _wake_source(now, ist, ht, hs, hp, src, xs)
                     elif is_read:
                         _q_push(rq, rqh, rqn, b, s)
                     else:
@@ -329,7 +329,8 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
                     b = c_bank[pos]
                     if xs[KS.X_ON] != 0:
                         KS.admit(b, now, sf, si, free, ib, ibh, ibn, rq, rqh, rqn, wq, wqh, wqn, rpend, wpend,
-                                 done_f, done_i, ist, ht, hs, hp, src, xs, xf, alog)
+                                 done_f, done_i, ist, xs, xf, alog)
+                        _wake_source(now, ist, ht, hs, hp, src, xs)
                     else:
                         _admit(b, now, sf, si, ib, ibh, ibn, rq, rqh, rqn, wq, wqh, wqn, rpend, wpend)
                     k = S_SPACECHK
@@ -373,7 +374,8 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
         # ---- the bank's loop
         if xs[KS.X_ON] != 0:
             KS.admit(b, now, sf, si, free, ib, ibh, ibn, rq, rqh, rqn, wq, wqh, wqn, rpend, wpend,
-                     done_f, done_i, ist, ht, hs, hp, src, xs, xf, alog)
+                     done_f, done_i, ist, xs, xf, alog)
+            _wake_source(now, ist, ht, hs, hp, src, xs)
         else:
             _admit(b, now, sf, si, ib, ibh, ibn, rq, rqh, rqn, wq, wqh, wqn, rpend, wpend)
         if bi[b, B_DRAIN] != 0 and wqn[b] <= low:
@@ -442,6 +444,14 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
         bf[b, BF_BUSY] += dur
         bi[b, B_KIND] = K_DONE
         _push(ht, hs, hp, ist, now + dur, b)
+
+
+@njit(cache=True)
+def _wake_source(now, ist, ht, hs, hp, src, xs):
+    """A request the queue policies completed freed the slot the source waits for."""
+    if xs[KS.X_WAKE_SRC] != 0:
+        xs[KS.X_WAKE_SRC] = 0
+        _push(ht, hs, hp, ist, now, src)
 
 
 @njit(cache=True)

@@ -7,7 +7,10 @@ Rixner, Dally, Kapasi, Mattson and Owens, "Memory Access Scheduling", ISCA
 oldest.  So that nothing starves, a request that younger requests have
 passed ``controller.row_hit_cap`` times is served next: the rule is "the
 oldest request that hits the open row or has reached the cap, else the
-oldest", which guarantees that no request is passed more than the cap.
+oldest", which guarantees that no request is passed more than the cap.  A
+write that was cancelled or paused goes back to the head of its queue and
+resumes first, so writes to one line keep their order (the write path has
+already applied them in that order).
 The reads-first rule and write drains between the two queues are as with
 fcfs; the cap counts passes inside one queue.
 
@@ -68,7 +71,10 @@ class QueuePolicy:
         self.max_times_passed = 0
         self.coalesced = 0
         self.forwarded = 0
-        self.absorbed = []                    # (set cells, reset cells, pJ, pre-reads) of replaced writes
+        self.resumed: set[int] = set()        # id(queue entry) of writes put back at the head
+        # Cells, energy and pre-reads of replaced writes (summed in the kernel's order).
+        self.a_set = self.a_reset = self.a_pre = 0
+        self.a_pj = 0.0
 
     # ------------------------------------------------------------ rows
     def row(self, entry, writes: bool) -> int:
@@ -84,7 +90,10 @@ class QueuePolicy:
             entry = q.popleft()
         else:
             k = 0
-            for i, e in enumerate(q):
+            # A write that went back to the head (cancelled or paused) resumes
+            # first, so writes to one line keep their order.
+            resumed = writes and id(q[0]) in self.resumed
+            for i, e in enumerate(q if not resumed else ()):
                 r = self.row(e, writes)
                 if (r >= 0 and r == open_row) or self.passed.get(id(e), 0) >= self.cap:
                     k = i
@@ -110,6 +119,7 @@ class QueuePolicy:
             open_row = r
         if writes:
             self._started(b, entry)
+            self.resumed.discard(id(entry))
         return entry, open_row
 
     # ------------------------------------------------------------ admission
@@ -146,7 +156,10 @@ class QueuePolicy:
             if count_cost:
                 o_prep, o_item = old
                 f, i = o_prep.front, o_item[0]
-                self.absorbed.append((f[2][i], f[3][i], f[4][i], f[5][i] > 0))
+                self.a_set += f[2][i]
+                self.a_reset += f[3][i]
+                self.a_pj += f[4][i]
+                self.a_pre += f[5][i] > 0
         wq.append(entry)
         if self.coalesce or self.forward:
             self.waiting[b][line] = entry

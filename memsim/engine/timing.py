@@ -660,7 +660,10 @@ class TimingEngine:
         if need > 0:
             pool.put(need)      # never waits: only what was taken comes back
         if again is not None:
-            self.wq[b].appendleft((prep, again))
+            entry = (prep, again)
+            self.wq[b].appendleft(entry)
+            if self.policy.fr_fcfs:
+                self.policy.resumed.add(id(entry))
         elif idx == PRESET:
             self.preset[phys] = True
             tot.presets += 1
@@ -681,12 +684,10 @@ class TimingEngine:
     def policy_counts(self) -> dict:
         """The queue policies' counters (see :func:`memsim.engine.sched.settle`)."""
         pol = self.policy
-        a = pol.absorbed
         return {"row_hits": pol.row_hits, "write_row_hits": pol.write_row_hits,
                 "requests_passed": pol.requests_passed, "max_times_passed": pol.max_times_passed,
                 "coalesced": pol.coalesced, "forwarded": pol.forwarded,
-                "a_set": sum(x[0] for x in a), "a_reset": sum(x[1] for x in a),
-                "a_pj": sum(x[2] for x in a), "a_pre": sum(x[3] for x in a)}
+                "a_set": pol.a_set, "a_reset": pol.a_reset, "a_pj": pol.a_pj, "a_pre": int(pol.a_pre)}
 
     def refresh_cost(self, lines: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
         """(service ns, energy pJ, cells programmed, current uA) of refreshing ``lines``.
