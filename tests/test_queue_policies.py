@@ -172,3 +172,30 @@ def test_coalescing_refused_for_program_and_verify_cells(tmp_path):
     code, out, err = memsim_cli("run", str(cfg))
     assert code == 2 and out == "" and "Traceback" not in err
     assert err.count("\n") == 1 and f"{cfg}: controller.coalesce_writes" in err
+
+
+def test_writes_to_one_line_finish_in_arrival_order_under_fr_fcfs():
+    # The write path applies writes in stream order, so the controller must
+    # serve writes to one line in that order (FR-FCFS keeps it: same line, same
+    # row; a cancelled or paused write resumes first).  Checked from the times.
+    ov = {"workload.requests": 20000, "array.banks": 2, "array.row_lines": 4, "workload.footprint_lines": 32,
+          "array.lines": 4096, "workload.interval_ns": 30.0, "workload.read_fraction": 0.5,
+          "controller.scheduler": "fr_fcfs", "controller.row_hit_cap": 2, "controller.write_cancel": True}
+    cfg, tot, _ = _totals(ov)
+    rng = np.random.default_rng(cfg.run.seed)
+    build_path(cfg, rng)
+    lines = np.concatenate([c.line for c in build_source(cfg, rng)])
+    w = tot.op == 1
+    assert tot.cancellations > 0 and tot.requests_passed > 0
+    for line in np.unique(lines[w]):
+        sel = w & (lines == line)
+        order = np.argsort(tot.arrival_ns[sel], kind="stable")
+        assert np.all(np.diff(tot.finish_ns[sel][order]) > 0), line
+
+
+def test_unknown_scheduler_is_one_line(tmp_path):
+    cfg = tmp_path / "s.toml"
+    cfg.write_text('[controller]\nscheduler = "fifo"\n')
+    code, out, err = memsim_cli("run", str(cfg))
+    assert code == 2 and out == "" and err.count("\n") == 1
+    assert "controller.scheduler" in err and "fr_fcfs" in err

@@ -1,12 +1,13 @@
 """Queue policies of the compiled kernel: FR-FCFS order, write coalescing, read forwarding.
 
 The compiled twin of :mod:`memsim.engine.sched` (the reference's readable
-version; the rules are explained there).  numba's cache does not notice a
-change here in the kernel that calls these helpers: after editing this
-module, touch ``kernel.py`` (or clear ``memsim/engine/__pycache__``).  :func:`memsim.engine.kernel.run_kernel`
-calls these helpers only where a queue is taken from or filled, and only
-when one of the policies is on (``xs[X_ON]``), so with all of them off the
-kernel runs exactly as before.
+version; the rules are explained there).
+:func:`memsim.engine.kernel.run_kernel` calls these helpers only where a
+queue is taken from or filled, and only when one of the policies is on
+(``xs[X_ON]``), so with all of them off the kernel runs exactly as before.
+numba's cache does not notice a change here in the kernel that calls these
+helpers: after editing this module, touch ``kernel.py`` (or clear
+``memsim/engine/__pycache__``).
 
 State lives in two small arrays owned by the fast engine: ``xs`` (integer
 parameters and counters) and ``xf`` (float parameter and sum).  Per slot the
