@@ -211,6 +211,14 @@ def test_summary_identical_and_names_engine():
                             "power.budget_ua": 40000.0})
 
 
+def test_summary_identical_with_queue_policies():
+    s = assert_summaries_agree({
+        "workload.requests": 6000, "array.row_lines": 8, "workload.footprint_lines": 128,
+        "workload.interval_ns": 25.0, "controller.scheduler": "fr_fcfs", "controller.coalesce_writes": True,
+        "controller.forward_reads": True, "energy.peripheral_pj_per_access": 100.0, "energy.io_pj_per_bit": 1.0})
+    assert s["writes_coalesced"] > 0 and s["reads_forwarded"] > 0 and s["write_row_hits"] > 0
+
+
 @pytest.mark.parametrize("extra, gap", [
     ({"write.scheme": "block_erase"}, "block erase"),
     ({"controller.hint_preset": True, "workload.hint_lead_ns": 500.0}, "hint"),

@@ -71,8 +71,10 @@ def summarize(cfg: RunConfig, tot: TimingTotals, path: WritePath, cache=None,
     s.update(tot.stream.stats(WRITE, "write_latency"))
     cache_pj = cache_energy_pj(cfg, cache)
     span = sim if cache is None else max(sim, cache.last_hit_finish_ns)
+    # Reads answered from the write queue and writes replaced in it never reach a bank or the bus.
     more = periphery_energy(cfg, read_pj=tot.read_pj, read_bits=tot.read_bits, row_hits=tot.row_hits,
-                            user_reads=tot.reads, user_writes=tot.writes, moves=tot.move_writes,
+                            user_reads=tot.reads - tot.reads_forwarded,
+                            user_writes=tot.writes - tot.writes_coalesced, moves=tot.move_writes,
                             refreshes=refreshes, span_ns=span)
     # The cells' parts in their old order first: with the new terms zero the
     # total is bit for bit what it was before they existed.
