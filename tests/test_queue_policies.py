@@ -4,8 +4,6 @@ identity for Poisson streams.  Both engines give the same numbers
 (tests/test_engine_diff.py), so the checks run on the compiled one."""
 import numpy as np
 import pytest
-from conftest import memsim_cli
-
 from memsim import simulate
 from memsim.engine.fast import FastEngine
 from memsim.experiment.build import build_path, build_source
@@ -166,14 +164,6 @@ def test_forwarded_fraction_from_write_residence():
     assert np.count_nonzero(np.isclose(lat, cfg.controller.forward_ns)) >= tot.reads_forwarded
 
 
-def test_coalescing_refused_for_program_and_verify_cells(tmp_path):
-    cfg = tmp_path / "c.toml"
-    cfg.write_text('[cell]\npreset = "pcm_mlc2"\n[controller]\ncoalesce_writes = true\n')
-    code, out, err = memsim_cli("run", str(cfg))
-    assert code == 2 and out == "" and "Traceback" not in err
-    assert err.count("\n") == 1 and f"{cfg}: controller.coalesce_writes" in err
-
-
 def test_writes_to_one_line_finish_in_arrival_order_under_fr_fcfs():
     # The write path applies writes in stream order, so the controller must
     # serve writes to one line in that order (FR-FCFS keeps it: same line, same
@@ -192,10 +182,3 @@ def test_writes_to_one_line_finish_in_arrival_order_under_fr_fcfs():
         order = np.argsort(tot.arrival_ns[sel], kind="stable")
         assert np.all(np.diff(tot.finish_ns[sel][order]) > 0), line
 
-
-def test_unknown_scheduler_is_one_line(tmp_path):
-    cfg = tmp_path / "s.toml"
-    cfg.write_text('[controller]\nscheduler = "fifo"\n')
-    code, out, err = memsim_cli("run", str(cfg))
-    assert code == 2 and out == "" and err.count("\n") == 1
-    assert "controller.scheduler" in err and "fr_fcfs" in err
