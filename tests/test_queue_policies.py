@@ -4,6 +4,7 @@ identity for Poisson streams.  Both engines give the same numbers
 (tests/test_engine_diff.py), so the checks run on the compiled one."""
 import numpy as np
 import pytest
+
 from memsim import simulate
 from memsim.engine.fast import FastEngine
 from memsim.experiment.build import build_path, build_source
