@@ -90,6 +90,12 @@ CONFIGS = [
     ('[cell]\npreset = "pcm_mlc2"\n[refresh]\npolicy = "drift"\n[workload]\ninterval_ns = 1e6\n', "run",
      "workload.requests"),
     ('[cell]\npreset = "pcm_tri"\n[controller]\nwrite_pause = true\n', "run", "controller.write_pause"),
+    # queue policies: a replaced write's pulses are kept for SLC PCM only; names and ranges
+    ('[cell]\npreset = "pcm_mlc2"\n[controller]\ncoalesce_writes = true\n', "run", "controller.coalesce_writes"),
+    ('[cell]\npreset = "reram_slc"\n[controller]\ncoalesce_writes = true\n', "run", "controller.coalesce_writes"),
+    ('[controller]\nscheduler = "fifo"\n', "run", "controller.scheduler"),
+    ("[controller]\nrow_hit_cap = 0\n", "run", "controller.row_hit_cap"),
+    ("[controller]\nforward_ns = nan\n", "run", "controller.forward_ns"),
     # cross-field checks name the file
     ('[write]\nscheme = "block_erase"\n[leveling]\nscheme = "start_gap"\n', "run", "leveling.scheme"),
     ("[cell]\nbits_per_cell = 2\n", "run", "cell.level_log10_ohm"),

@@ -99,6 +99,10 @@ configs = st.fixed_dictionaries({
     "erase.victim": st.sampled_from(["greedy", "cost_benefit", "fifo"]),
     "erase.idle_blocks": st.sampled_from([0, 4]),
     "erase.fallback": st.sampled_from(["in_place", "wait"]),
+    "controller.scheduler": st.sampled_from(["fcfs", "fr_fcfs"]),
+    "controller.row_hit_cap": st.sampled_from([1, 4]),
+    "controller.coalesce_writes": st.booleans(),
+    "controller.forward_reads": st.booleans(),
     "leveling.scheme": st.sampled_from(["none", "start_gap"]),
     "leveling.psi": st.sampled_from([3, 50]),
     "power.budget_ua": st.sampled_from([0.0, 20000.0, 60000.0, 1e9]),
@@ -130,6 +134,7 @@ def _consistent(ov):
         # and hint pre-programming models SLC.
         ov["controller.write_pause"] = False
         ov["controller.hint_preset"] = False
+        ov["controller.coalesce_writes"] = False   # replaced writes' pulses are not kept for these cells
     if ov["leveling.scheme"] != "none":
         ov["controller.hint_preset"] = False     # leveler moves would undo a pre-programmed line
     if ov["write.scheme"] == "block_erase":
@@ -203,6 +208,23 @@ FEATURES = {
     "everything": {"controller.write_cancel": True, "controller.write_pause": True,
                    "power.budget_ua": 30000.0, "array.row_lines": 8, "leveling.scheme": "start_gap",
                    "workload.arrival": "closed", "array.channels": 2},
+    # Queue policies on a small hot footprint, so rows repeat, writes meet queued
+    # writes to their line and reads find them.
+    "fr_fcfs": {"controller.scheduler": "fr_fcfs", "array.row_lines": 8, "workload.footprint_lines": 256},
+    "fr_fcfs, cap 1, drains": {"controller.scheduler": "fr_fcfs", "controller.row_hit_cap": 1,
+                               "array.row_lines": 4, "array.mapping": "row", "workload.footprint_lines": 128,
+                               "workload.interval_ns": 15.0, "workload.read_fraction": 0.5},
+    "coalescing": {"controller.coalesce_writes": True, "workload.footprint_lines": 64,
+                   "workload.interval_ns": 20.0},
+    "forwarding": {"controller.forward_reads": True, "workload.footprint_lines": 64, "workload.interval_ns": 20.0},
+    "queue policies, cancellation, closed": {
+        "controller.scheduler": "fr_fcfs", "controller.coalesce_writes": True, "controller.forward_reads": True,
+        "controller.write_cancel": True, "array.row_lines": 8, "workload.footprint_lines": 64,
+        "workload.arrival": "closed", "workload.outstanding": 12},
+    "queue policies, power, pausing": {
+        "controller.scheduler": "fr_fcfs", "controller.coalesce_writes": True, "controller.forward_reads": True,
+        "controller.write_pause": True, "power.budget_ua": 30000.0, "array.row_lines": 8,
+        "workload.footprint_lines": 64, "workload.interval_ns": 30.0},
 }
 
 
@@ -222,6 +244,12 @@ def test_each_feature_matches_reference(extra):
         assert ref.erase_pj > 0
     if extra.get("workload.hint_lead_ns", 0) > 0:
         assert ref.presets > 0 and ref.hint_hits > 0
+    if extra.get("controller.scheduler") == "fr_fcfs" and not extra.get("controller.coalesce_writes"):
+        assert ref.requests_passed > 0 and ref.write_row_hits > 0
+    if extra.get("controller.coalesce_writes"):
+        assert ref.writes_coalesced > 0
+    if extra.get("controller.forward_reads"):
+        assert ref.reads_forwarded > 0
 
 
 refresh_configs = st.fixed_dictionaries({
@@ -292,6 +320,14 @@ def test_trace_hints_match_reference(tmp_path):
     assert_summaries_agree(ov)
 
 
+def test_summary_identical_with_queue_policies():
+    s = assert_summaries_agree({
+        "workload.requests": 6000, "array.row_lines": 8, "workload.footprint_lines": 128,
+        "workload.interval_ns": 25.0, "controller.scheduler": "fr_fcfs", "controller.coalesce_writes": True,
+        "controller.forward_reads": True, "energy.peripheral_pj_per_access": 100.0, "energy.io_pj_per_bit": 1.0})
+    assert s["writes_coalesced"] > 0 and s["reads_forwarded"] > 0 and s["write_row_hits"] > 0
+
+
 @pytest.mark.parametrize("extra", [
     {"write.scheme": "block_erase"},
     {"controller.hint_preset": True, "workload.hint_lead_ns": 500.0},
@@ -318,6 +354,12 @@ INACTIVE = {
     "cancellation without reads": {"controller.write_cancel": True, "controller.cancel_before": 1.0,
                                    "workload.read_fraction": 0.0},
     "pausing without reads": {"controller.write_pause": True, "workload.read_fraction": 0.0},
+    # Every line written once (sequential over more lines than requests): no
+    # write meets a queued write to its line, no read finds one.
+    "coalescing and forwarding, no repeated line": {
+        "controller.coalesce_writes": True, "controller.forward_reads": True, "workload.pattern": "sequential"},
+    # Without a row buffer there is no row hit to prefer: fr_fcfs is fcfs.
+    "fr_fcfs without a row buffer": {"controller.scheduler": "fr_fcfs", "array.row_lines": 0},
 }
 
 

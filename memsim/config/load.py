@@ -438,6 +438,13 @@ def check_consistency(cfg: RunConfig, source: str, overridden: set[str]) -> None
         raise ConfigError(_where(source, key, overridden), f"write_pause = true with {found}",
                           "write_pause only with single-level PCM cells (bits_per_cell = 1, "
                           "tri_level = false, technology = 'pcm')")
+    if c.coalesce_writes and verified:
+        # A replaced write's cells are taken back from the wear ledger; a
+        # program-and-verify write's pulses are not kept per queued write.
+        raise ConfigError(_where(source, "controller.coalesce_writes", overridden),
+                          "true with program-and-verify cells (multi-level, tri-level, ReRAM or STT-MRAM)",
+                          "coalesce_writes only with single-level PCM cells (bits_per_cell = 1, "
+                          "tri_level = false, technology = 'pcm')")
 
     def level_key(name: str) -> str:
         # A level count changed by --set is the thing to blame for a list left from the file.

@@ -287,6 +287,21 @@ class ControllerSection(Section):
     hint_preset: bool = Field(False, description="Act on write hints: pre-program the hinted line to "
                                                  "all-SET in idle time, so the write needs only RESET "
                                                  "pulses.")
+    scheduler: Literal["fcfs", "fr_fcfs"] = Field(
+        "fcfs", description="Order within a bank's read queue and write queue: fcfs = oldest first; "
+                            "fr_fcfs = requests to the open row first, then oldest (user writes then "
+                            "open and hit rows as reads do).")
+    row_hit_cap: int = Field(4, ge=1, le=1024,
+                             description="fr_fcfs: most times younger row hits may pass a queued "
+                                         "request; then it is served next (no starvation).")
+    coalesce_writes: bool = Field(False, description="A user write to a line whose earlier write still "
+                                                     "waits (not started) in the queue replaces it; the "
+                                                     "replaced write completes then and programs no cells.")
+    forward_reads: bool = Field(False, description="A read of a line with a waiting write in its bank's "
+                                                   "write queue is answered from the queue after "
+                                                   "forward_ns, without a bank access.")
+    forward_ns: float = Field(5.0, gt=0, le=1e6,
+                              description="Latency of a read answered from the write queue, ns.")
 
 
 class WriteSection(Section):

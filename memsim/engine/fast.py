@@ -19,9 +19,11 @@ import numpy as np
 from numba import njit
 
 from memsim.engine import kernel as K
+from memsim.engine import kernel_sched as KS
 from memsim.engine.fast_steps import AgentSteps, grown_queues
 from memsim.engine.ops import OpColumns, prepare_ops
 from memsim.engine.refresh_agent import URGENT, RefreshAgent
+from memsim.engine.sched import settle
 from memsim.engine.stream import LatencyStream
 from memsim.engine.timing import TimingEngine, TimingTotals, price_energy
 from memsim.policy.refresh import RefreshPlan
@@ -150,8 +152,20 @@ class FastEngine(AgentSteps, TimingEngine):
         self.op = np.zeros(cap, np.int8)
         self.n_req = 0
         self.stream = LatencyStream()
-        self.done_f = np.zeros((1 << 16, 2))
-        self.done_i = np.zeros((1 << 16, 2), np.int64)
+        # Queue policies (kernel_sched): one admission can complete a whole
+        # inbox, so the logs keep that many rows free while they are on.
+        pol = self.policy
+        self.xs = xs = np.zeros(KS.N_XS, np.int64)
+        KS.layout(xs, K)
+        xs[KS.X_ON], xs[KS.X_SCHED], xs[KS.X_CAP] = pol.active, pol.fr_fcfs, pol.cap
+        xs[KS.X_COALESCE], xs[KS.X_FORWARD], xs[KS.X_CAS] = pol.coalesce, pol.forward, self.cost_at_service
+        xs[KS.X_MARGIN] = rcap + wcap + 4 if pol.active else 0
+        self.xf = np.zeros(KS.N_XF)
+        self.xf[KS.XF_FORWARD_NS] = pol.forward_ns
+        n_log = max(1 << 16, 4 * int(xs[KS.X_MARGIN]))
+        self.alog = np.zeros((n_log if pol.coalesce else 1, 2), np.int64)
+        self.done_f = np.zeros((n_log, 2))
+        self.done_i = np.zeros((n_log, 2), np.int64)
         self.max_finish = 0.0
 
     def _grow_slots(self) -> None:
@@ -182,8 +196,7 @@ class FastEngine(AgentSteps, TimingEngine):
         self.op[base:base + n] = ops.op
         return base
 
-    @staticmethod
-    def _columns(ops: OpColumns) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    def _columns(self, ops: OpColumns) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
         nr, nw = ops.n_reads, ops.w_req.size
         c_bank = np.empty(nr + nw, np.int64)
         c_f = np.empty((nr + nw, 5))
@@ -198,12 +211,17 @@ class FastEngine(AgentSteps, TimingEngine):
                       np.asarray(ops.n_set, i64), np.asarray(ops.n_reset, i64),
                       np.asarray(ops.service, float), np.asarray(ops.current, float),
                       np.asarray(ops.pre, float), np.asarray(ops.pj, float), c_bank, c_f, c_i)
+        if not (self.policy.fr_fcfs or ops.alt is not None):
+            return np.ascontiguousarray(ops.t, dtype=float), c_bank, c_f, c_i
+        o = np.asarray(ops.order, i64)
+        w = o >= nr
+        j = o[w] - nr
+        if self.policy.fr_fcfs:
+            # User writes open rows only under FR-FCFS (see engine/sched.py).
+            c_i[w, K.SI_ROW] = np.asarray(ops.w_row, i64)[j]
         if ops.alt is not None:
             # The fast form (out of place with block erase, or into a line a hint
             # pre-programmed), taken if the bank finds it so at service.
-            o = np.asarray(ops.order, i64)
-            w = o >= nr
-            j = o[w] - nr
             alt_pj, alt_set, alt_reset = ops.alt
             c_f[w, 4] = np.asarray(alt_pj, float)[j]
             c_i[w, K.SI_OOP_SET] = np.asarray(alt_set, i64)[j]
@@ -219,8 +237,9 @@ class FastEngine(AgentSteps, TimingEngine):
                 self.wq, self.wqh, self.wqn, self.rpend, self.wpend, self.bus_free, self.pool_level,
                 self.pq, self.pqh, self.pqn, cols[0], cols[1], cols[2], cols[3], base,
                 self.done_f, self.done_i, self.clog, self.fqa, self.fqh, self.fqn, self.hlog,
-                self.hqa, self.hqh, self.hqn)
+                self.hqa, self.hqh, self.hqn, self.xs, self.xf, self.alog)
             self._flush_cancel_wear()
+            self._flush_absorbed()
             self._flush_done()
             self._flush_handovers()
             if status == K.SCAN:
@@ -269,6 +288,16 @@ class FastEngine(AgentSteps, TimingEngine):
                 rows = rows[~done]
             self.cancel_wear(rows[:, 0], rows[:, 1])
             self.ist[K.CLOG_N] = 0
+
+    def _flush_absorbed(self) -> None:
+        """Replaced writes program no cells: take their wear back (the reference does it one by one)."""
+        n = int(self.xs[KS.X_ALOG_N])
+        if n:
+            phys, cells = self.alog[:n, 0], self.alog[:n, 1]
+            np.subtract.at(self.path.line_writes, phys, 1)
+            if not self.path.defer_user_wear:
+                self.path.ledger.add("user", phys, -cells.astype(float))
+            self.xs[KS.X_ALOG_N] = 0
 
     def _flush_done(self) -> None:
         n = int(self.ist[K.DONE_N])
@@ -320,6 +349,14 @@ class FastEngine(AgentSteps, TimingEngine):
 
     def _grow_refresh_queues(self, need: int) -> None:
         self.fqa = grown_queues(self.fqa, self.fqh, need, self.fqn)
+
+    def policy_counts(self) -> dict:
+        xs = self.xs
+        return {"row_hits": int(xs[KS.X_ROW_HITS]), "write_row_hits": int(xs[KS.X_WROW_HITS]),
+                "requests_passed": int(xs[KS.X_PASSED]), "max_times_passed": int(xs[KS.X_MAX_PASSED]),
+                "coalesced": int(xs[KS.X_COALESCED]), "forwarded": int(xs[KS.X_FORWARDED]),
+                "a_set": int(xs[KS.X_A_SET]), "a_reset": int(xs[KS.X_A_RESET]),
+                "a_pj": float(self.xf[KS.XF_A_PJ]), "a_pre": int(xs[KS.X_A_PRE])}
 
     def cancel_wear(self, phys: np.ndarray, wasted: np.ndarray) -> None:
         """Cells programmed by aborted writes (the reference counts them one by one)."""
@@ -381,6 +418,8 @@ class FastEngine(AgentSteps, TimingEngine):
         tot.set_cells += int(ist[K.SET_CELLS])
         tot.reset_cells += int(ist[K.RESET_CELLS])
         tot.read_bits += int(ist[K.READ_BITS])
+        if self.policy.active:
+            settle(self, tot, self.policy_counts())
         price_energy(tot, self.cell)
         if self.agent is not None:
             self.agent.finish(tot.simulated_ns)

@@ -22,6 +22,8 @@ from __future__ import annotations
 import numpy as np
 from numba import njit
 
+from memsim.engine import kernel_sched as KS
+
 # ---- integer state (ist)
 SEQ, HSIZE, SRC_K, SRC_POS, SRC_RUN, IN_FLIGHT, SRC_DONE, SLOT_WAIT, FREE_TOP = range(9)
 CANCELS, PAUSES, CANC_CELLS, CLOG_N, USER_SET, USER_RESET, SRC_B, ERROR = range(9, 17)
@@ -52,7 +54,8 @@ SF_T, SF_SERVICE, SF_CUR, SF_PRE, SF_PJ, SF_OOP_NS = range(6)
 N_SF = 6
 SI_READ, SI_REQ, SI_CH, SI_ROW, SI_PHYS, SI_BUS, SI_RR, SI_SR, SI_CELLS, SI_NSET, SI_NRESET, \
     SI_OOP_SET, SI_OOP_RESET = range(13)
-N_SI = 13
+SI_PASSED, SI_STARTED = 13, 14       # queue policies (kernel_sched)
+N_SI = 15
 # ---- resume points of a bank
 K_RUN, K_DONE, K_GOT, K_WDONE, K_PY = range(5)     # K_PY: a Python sub-process (erase agent) waits
 # ---- resume points of the source
@@ -210,7 +213,8 @@ def _trigger_get(p, me, pool_level, pq, pqh, pqn, bf, ist, fst, ht, hs, hp):
 @njit(cache=True)
 def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn, rq, rqh, rqn,
                wq, wqh, wqn, rpend, wpend, bus_free, pool_level, pq, pqh, pqn,
-               c_t, c_bank, c_f, c_i, base, done_f, done_i, clog, fq, fqh, fqn, hlog, hq, hqh, hqn):
+               c_t, c_bank, c_f, c_i, base, done_f, done_i, clog, fq, fqh, fqn, hlog, hq, hqh, hqn,
+               xs, xf, alog):
     """Run until the source needs a chunk or slots, or until the end.
 
     Chunk columns (admission order): ``c_t`` time, ``c_bank``, ``c_f`` =
@@ -219,6 +223,9 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
     SET cells, RESET cells).  ``base`` is the global index of the chunk's
     first request.  Completions go to ``done_f`` (arrival, finish) and
     ``done_i`` (request, op) in completion order; the caller empties them.
+    ``xs``, ``xf`` and ``alog`` belong to the queue policies
+    (:mod:`memsim.engine.kernel_sched`: FR-FCFS, coalescing, forwarding),
+    called only where a queue is filled or taken from.
     """
     nb = pi[P_NB]
     src = nb
@@ -232,7 +239,7 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
     burst, read_ns, hit_ns = pf[F_BURST], pf[F_READ], pf[F_HIT]
     n_entries = c_t.shape[0]
     while True:
-        if ist[CLOG_N] + 1 >= clog.shape[0] or ist[DONE_N] >= done_f.shape[0]:
+        if ist[CLOG_N] + 1 >= clog.shape[0] or KS.logs_full(ist[DONE_N], done_f.shape[0], xs, alog):
             return FLUSH              # the caller takes the logs first (two entries per event at most)
         if ist[HSIZE] + 2 * nb + 8 > ht.shape[0]:
             return GROW_HEAP          # void hint timers stay in the heap until their time
@@ -356,7 +363,10 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
                         ist[SRC_K] = k
                         return NEED_SLOTS
                     s = _fill(pos, fst[SRC_T], base, c_f, c_i, sf, si, free, ist)
-                    if is_read:
+                    if xs[KS.X_ON] != 0:
+                        KS.enqueue(b, s, sf, si, free, rq, rqh, rqn, wq, wqh, wqn, done_f, done_i, ist, xs, xf, alog)
+                        _wake_source(now, ist, ht, hs, hp, src, xs)
+                    elif is_read:
                         _q_push(rq, rqh, rqn, b, s)
                     else:
                         _q_push(wq, wqh, wqn, b, s)
@@ -366,7 +376,12 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
                     k = S_NEXT
                 elif k == S_AFTER_T or k == S_SPACE:
                     b = c_bank[pos]
-                    _admit(b, now, sf, si, ib, ibh, ibn, rq, rqh, rqn, wq, wqh, wqn, rpend, wpend)
+                    if xs[KS.X_ON] != 0:
+                        KS.admit(b, now, sf, si, free, ib, ibh, ibn, rq, rqh, rqn, wq, wqh, wqn, rpend, wpend,
+                                 done_f, done_i, ist, xs, xf, alog)
+                        _wake_source(now, ist, ht, hs, hp, src, xs)
+                    else:
+                        _admit(b, now, sf, si, ib, ibh, ibn, rq, rqh, rqn, wq, wqh, wqn, rpend, wpend)
                     k = S_SPACECHK
             continue
 
@@ -415,7 +430,12 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
         if not top:
             continue
         # ---- the bank's loop
-        _admit(b, now, sf, si, ib, ibh, ibn, rq, rqh, rqn, wq, wqh, wqn, rpend, wpend)
+        if xs[KS.X_ON] != 0:
+            KS.admit(b, now, sf, si, free, ib, ibh, ibn, rq, rqh, rqn, wq, wqh, wqn, rpend, wpend,
+                     done_f, done_i, ist, xs, xf, alog)
+            _wake_source(now, ist, ht, hs, hp, src, xs)
+        else:
+            _admit(b, now, sf, si, ib, ibh, ibn, rq, rqh, rqn, wq, wqh, wqn, rpend, wpend)
         if bi[b, B_DRAIN] != 0 and wqn[b] <= low:
             bi[b, B_DRAIN] = 0
         if bi[b, B_DRAIN] == 0 and wqn[b] >= high:
@@ -436,7 +456,7 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
             fst[REFRESH_BUSY] += dur
         elif draining or (wqn[b] > 0 and rqn[b] == 0
                         and (idle_writes or ist[SLOT_WAIT] != 0 or (ist[SRC_DONE] != 0 and ibn[b] == 0))):
-            s = _q_pop(wq, wqh, wqn, b)
+            s = KS.pick(wq, wqh, wqn, b, si, bi, True, xs) if xs[KS.X_ON] != 0 else _q_pop(wq, wqh, wqn, b)
             bi[b, B_SLOT] = s
             if extended:
                 if bi[b, B_SPACE] != 0:
@@ -459,7 +479,7 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
             else:
                 dur = sf[s, SF_SERVICE]
         elif rqn[b] > 0:
-            s = _q_pop(rq, rqh, rqn, b)
+            s = KS.pick(rq, rqh, rqn, b, si, bi, False, xs) if xs[KS.X_ON] != 0 else _q_pop(rq, rqh, rqn, b)
             bi[b, B_SLOT] = s
             bi[b, B_STREAK] = 0
             if pi[P_SCRUB] != 0:
@@ -519,6 +539,14 @@ def run_kernel(pi, pf, ist, fst, ht, hs, hp, bi, bf, sf, si, free, ib, ibh, ibn,
             ist[SCAN_B] = b
             ist[SCRUB_PHYS] = scrub_phys
             return SCRUB
+
+
+@njit(cache=True)
+def _wake_source(now, ist, ht, hs, hp, src, xs):
+    """A request the queue policies completed freed the slot the source waits for."""
+    if xs[KS.X_WAKE_SRC] != 0:
+        xs[KS.X_WAKE_SRC] = 0
+        _push(ht, hs, hp, ist, now, src)
 
 
 @njit(cache=True)

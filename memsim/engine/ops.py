@@ -59,6 +59,7 @@ class OpColumns:
     order: np.ndarray
     t: np.ndarray
     alt: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None
+    w_row: np.ndarray | None = None      # row of each user write (-1 for a move)
 
     @property
     def n_reads(self) -> int:
@@ -89,11 +90,13 @@ def prepare_ops(eng, chunk: Chunk) -> OpColumns:
     r_idx = np.flatnonzero(is_read)
     r_phys = eng.path.leveler.lookup(chunk.line[r_idx])
     r_ch, r_bank, r_row = eng.amap.locate(r_phys)
-    tot.row_hits += count_row_hits(eng.open_rows, r_bank, r_row)
+    if not eng.policy.active:
+        # From the stream; with a queue policy on, the engines count hits where they serve.
+        tot.row_hits += count_row_hits(eng.open_rows, r_bank, r_row)
     tot.read_bits += r_idx.size * eng.line_bits
 
     wb = eng.path.apply(chunk.line[w_idx], None if chunk.data is None else chunk.data[w_idx])
-    w_ch, w_bank, _ = eng.amap.locate(wb.phys)
+    w_ch, w_bank, w_row = eng.amap.locate(wb.phys)
     moves = wb.user < 0
     budget = eng.round_budget_ua
     if wb.program_ns is not None:             # multi-level cells: program-and-verify
@@ -166,7 +169,7 @@ def prepare_ops(eng, chunk: Chunk) -> OpColumns:
         w_req=np.asarray(w_req, np.int64), w_ch=w_ch, w_bank=w_bank, w_phys=wb.phys,
         service=service, uses_bus=~moves, current=current, pre=pre, rr=rr, sr=sr, pj=pj,
         cells=cells, n_set=wb.n_set, n_reset=wb.n_reset, order=order,
-        t=chunk.time_ns[pos[order]], alt=alt)
+        t=chunk.time_ns[pos[order]], alt=alt, w_row=np.where(moves, -1, w_row))
 
 
 @njit(cache=True)

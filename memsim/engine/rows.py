@@ -7,8 +7,11 @@ is therefore decided by the stream alone: it hits when the bank's previous
 read opened the same row.  Counting it here, per chunk with numpy, gives
 both engines the same count without a counter in either event loop.
 
-A scheduler that reorders reads (row hits first) would break the premise;
-it must count hits where it serves them instead.
+This holds only with the queue policies off.  FR-FCFS reorders reads and
+lets user writes open rows, and a forwarded read opens none, so with any
+policy on the engines count hits where the bank serves each request
+(:mod:`memsim.engine.sched`, :mod:`memsim.engine.kernel_sched`) and this
+count is not used.
 """
 from __future__ import annotations
 

@@ -30,6 +30,7 @@ import simpy
 from memsim.engine.erase_agent import EraseAgent
 from memsim.engine.ops import prepare_ops
 from memsim.engine.refresh_agent import REFRESH, URGENT, RefreshAgent
+from memsim.engine.sched import QueuePolicy, front_columns, settle
 from memsim.engine.stream import LatencyStream
 from memsim.policy.bitops import add_profile
 from memsim.policy.refresh import RefreshPlan
@@ -83,6 +84,12 @@ class TimingTotals:
     preset_cells: int = 0
     hint_hits: int = 0               # user writes that found their line pre-programmed
     row_hits: int = 0                # user reads served from the open row (engine/rows.py)
+    # Queue policies (engine/sched.py): counted where the bank serves or admits requests.
+    write_row_hits: int = 0          # fr_fcfs: user writes to the open row
+    requests_passed: int = 0         # fr_fcfs: requests served after younger ones passed them
+    max_times_passed: int = 0        # fr_fcfs: most passes one request waited through (<= row_hit_cap)
+    writes_coalesced: int = 0        # user writes replaced in the queue before they started
+    reads_forwarded: int = 0         # reads answered from the write queue
     stream: LatencyStream = field(default_factory=LatencyStream)   # latency and occupancy statistics
 
     @property
@@ -109,7 +116,7 @@ class _Wake(simpy.Event):
 class _Prepared:
     """One chunk, ready for simulated time: admission entries as tuples."""
 
-    __slots__ = ("arrival", "base", "entries", "finish", "lat", "op", "users")
+    __slots__ = ("arrival", "base", "entries", "finish", "front", "lat", "op", "users")
 
     def __init__(self, n: int) -> None:
         # Plain lists: the bank loop writes one element per request, and list
@@ -122,6 +129,7 @@ class _Prepared:
         self.entries: list = []
         self.users = 0
         self.base = 0           # global index of the chunk's first request
+        self.front = None       # per request: row, line and write cost (queue policies only)
 
 
 class TimingEngine:
@@ -170,6 +178,7 @@ class TimingEngine:
                          or self.hint_mode or self.closed_refresh)
         self.erase = EraseAgent(self) if self.out_of_place else None
         self.open_rows = np.full(self.amap.total_banks, -1, np.int64)   # row each bank's last read opened
+        self.policy = QueuePolicy(c, self.amap.total_banks)
 
     # ------------------------------------------------------------ preparation
     def _prepare(self, chunk: Chunk) -> _Prepared:
@@ -204,6 +213,8 @@ class TimingEngine:
         prep.entries = list(zip(ops.t.tolist(), (order < nr).tolist(),
                                 np.concatenate([ops.r_bank, ops.w_bank])[order].tolist(), ordered))
         prep.users = ops.users
+        if self.policy.active:
+            prep.front = front_columns(ops)
         return prep
 
     # ------------------------------------------------------------ simulation
@@ -298,11 +309,46 @@ class TimingEngine:
         while ib and ib[0][0] <= now:
             _, is_read, _, pi = ib.popleft()
             if is_read:
-                rq.append(pi)
                 self.rpend[b] -= 1
             else:
-                wq.append(pi)
                 self.wpend[b] -= 1
+            if self.policy.active:
+                self._enqueue(b, is_read, pi)
+            elif is_read:
+                rq.append(pi)
+            else:
+                wq.append(pi)
+
+    def _enqueue(self, b: int, is_read: bool, entry) -> None:
+        """Queue an arrived request under the queue policies (see :mod:`memsim.engine.sched`)."""
+        pol = self.policy
+        if is_read:
+            if pol.forwards(b, entry):
+                prep, item = entry
+                self._answer(prep, item[0], prep.arrival[item[0]] + pol.forward_ns)
+            else:
+                self.rq[b].append(entry)
+            return
+        old = pol.coalesce_into(b, entry, self.wq[b], not self.cost_at_service)
+        if old is not None:
+            o_prep, o_idx = old[0], old[1][0]
+            # The replaced write programs no cells: take back what the write path counted.
+            f = o_prep.front
+            self.path.line_writes[f[1][o_idx]] -= 1
+            if not self.path.defer_user_wear:
+                self.path.ledger.add("user", f[1][o_idx], -(f[2][o_idx] + f[3][o_idx]))
+            prep, item = entry
+            self._answer(o_prep, o_idx, prep.arrival[item[0]])
+
+    def _answer(self, prep, idx: int, finish: float) -> None:
+        """Complete a request without a bank access (forwarded or replaced) at ``finish``."""
+        prep.finish[idx] = finish
+        prep.lat[idx] = finish - prep.arrival[idx]
+        self.done.append(prep.base + idx)
+        self.in_flight -= 1
+        if self.slot is not None:
+            ev, self.slot = self.slot, None
+            ev.succeed()
 
     def _source(self):
         """Hand requests to their banks' inboxes in arrival order.
@@ -361,7 +407,10 @@ class TimingEngine:
                     self.space[b] = env.event()
                     yield self.space[b]
                     self._admit(b)
-                q.append(pi)
+                if self.policy.active:
+                    self._enqueue(b, is_read, pi)
+                else:
+                    q.append(pi)
                 self._wake(b, env.now)
         self.source_done = True
         for b in range(len(self.idle)):
@@ -385,9 +434,12 @@ class TimingEngine:
         draining = False
         open_row = -1
         streak = 0          # refreshes served in a row while reads waited
+        policy = self.policy if self.policy.active else None
         while True:
             now = env._now
             # Admit what has arrived (inlined: this loop is the hot path).
+            if policy is not None:
+                self._admit(b)
             while ib and ib[0][0] <= now:
                 _, is_read, _, pi = ib.popleft()
                 if is_read:
@@ -413,7 +465,10 @@ class TimingEngine:
                 tot.refresh_busy_ns += dur
             elif draining or (wq and not rq and (idle_writes or self.slot is not None
                                                  or (self.source_done and not ib))):
-                prep, item = wq.popleft()
+                if policy is None:
+                    prep, item = wq.popleft()
+                else:
+                    (prep, item), open_row = policy.pick(b, wq, open_row, True)
                 if extended:
                     if space[b] is not None:
                         sp, space[b] = space[b], None
@@ -428,7 +483,10 @@ class TimingEngine:
                 else:
                     dur = service
             elif rq:
-                prep, (idx, ch, row, phys) = rq.popleft()
+                if policy is None:
+                    prep, (idx, ch, row, phys) = rq.popleft()
+                else:
+                    (prep, (idx, ch, row, phys)), _ = policy.pick(b, rq, open_row, False)
                 streak = 0
                 if scrub is not None:
                     scrub(b, phys, now)
@@ -649,7 +707,10 @@ class TimingEngine:
         if need > 0:
             pool.put(need)      # never waits: only what was taken comes back
         if again is not None:
-            self.wq[b].appendleft((prep, again))
+            entry = (prep, again)
+            self.wq[b].appendleft(entry)
+            if self.policy.fr_fcfs:
+                self.policy.resumed.add(id(entry))
         elif idx == PRESET:
             self.preset[phys] = True
             tot.presets += 1
@@ -666,6 +727,14 @@ class TimingEngine:
             if self.slot is not None:
                 ev, self.slot = self.slot, None
                 ev.succeed()
+
+    def policy_counts(self) -> dict:
+        """The queue policies' counters (see :func:`memsim.engine.sched.settle`)."""
+        pol = self.policy
+        return {"row_hits": pol.row_hits, "write_row_hits": pol.write_row_hits,
+                "requests_passed": pol.requests_passed, "max_times_passed": pol.max_times_passed,
+                "coalesced": pol.coalesced, "forwarded": pol.forwarded,
+                "a_set": pol.a_set, "a_reset": pol.a_reset, "a_pj": pol.a_pj, "a_pre": int(pol.a_pre)}
 
     def refresh_cost(self, lines: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
         """(service ns, energy pJ, cells programmed, current uA) of refreshing ``lines``.
@@ -705,6 +774,8 @@ class TimingEngine:
         order = np.asarray(self.done, np.int64)
         tot.stream.add(tot.op[order], tot.arrival_ns[order], tot.finish_ns[order])
         tot.bank_busy_ns = np.asarray(tot.bank_busy_ns, dtype=float)
+        if self.policy.active:
+            settle(self, tot, self.policy_counts())
         price_energy(tot, self.cell)
         if self.agent is not None:
             self.agent.finish(tot.simulated_ns)

@@ -71,8 +71,10 @@ def summarize(cfg: RunConfig, tot: TimingTotals, path: WritePath, cache=None,
     s.update(tot.stream.stats(WRITE, "write_latency"))
     cache_pj = cache_energy_pj(cfg, cache)
     span = sim if cache is None else max(sim, cache.last_hit_finish_ns)
+    # Reads answered from the write queue and writes replaced in it never reach a bank or the bus.
     more = periphery_energy(cfg, read_pj=tot.read_pj, read_bits=tot.read_bits, row_hits=tot.row_hits,
-                            user_reads=tot.reads, user_writes=tot.writes, moves=tot.move_writes,
+                            user_reads=tot.reads - tot.reads_forwarded,
+                            user_writes=tot.writes - tot.writes_coalesced, moves=tot.move_writes,
                             refreshes=refreshes, span_ns=span)
     # The cells' parts in their old order first: with the new terms zero the
     # total is bit for bit what it was before they existed.
@@ -81,6 +83,7 @@ def summarize(cfg: RunConfig, tot: TimingTotals, path: WritePath, cache=None,
               + more["energy_background_pj"] + more["energy_peripheral_pj"] + more["energy_io_pj"]
               + cache_pj)
     bits = sum(host_counts(tot, cache)) * line_bytes * 8
+    rows_for_writes = cfg.controller.scheduler == "fr_fcfs" and cfg.array.row_lines > 0
     s.update({
         "energy_pj": energy,
         "energy_read_pj": more["energy_read_pj"],
@@ -97,6 +100,15 @@ def summarize(cfg: RunConfig, tot: TimingTotals, path: WritePath, cache=None,
         "energy_cache_pj": cache_pj,
         "row_hits": more["row_hits"],
         "row_hit_rate": more["row_hit_rate"],
+        # Queue policies (engine/sched.py); write row hits exist only where writes use
+        # rows (fr_fcfs with a row buffer), per served user write.
+        "write_row_hits": tot.write_row_hits if rows_for_writes else None,
+        "write_row_hit_rate": tot.write_row_hits / (tot.writes - tot.writes_coalesced)
+        if rows_for_writes and tot.writes > tot.writes_coalesced else None,
+        "requests_passed": tot.requests_passed,
+        "max_times_passed": tot.max_times_passed,
+        "writes_coalesced": tot.writes_coalesced,
+        "reads_forwarded": tot.reads_forwarded,
         "energy_per_bit_pj": energy / bits if bits else 0.0,
         "cells_programmed_per_write": (tot.user_set_cells + tot.user_reset_cells) / tot.writes
         if tot.writes else 0.0,

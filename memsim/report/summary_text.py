@@ -61,6 +61,11 @@ SECTIONS: list[_Section] = [
              _keys("write_cancellations", "cancelled_cells", "write_pauses", "energy_cancelled_pj",
                    "wear_cells_cancelled"),
              lambda c, s: bool(_get(c, "controller.write_cancel") or _get(c, "controller.write_pause"))),
+    _Section("controller queues",
+             _keys("write_row_hits", "write_row_hit_rate", "requests_passed", "max_times_passed",
+                   "writes_coalesced", "reads_forwarded"),
+             lambda c, s: _get(c, "controller.scheduler", "fcfs") != "fcfs"
+             or bool(_get(c, "controller.coalesce_writes") or _get(c, "controller.forward_reads"))),
     _Section("write hints",
              lambda k: k.startswith(("hint", "preset", "wasted_preset")) or k in (
                  "hints", "presets", "wasted_presets", "energy_preset_pj", "wear_cells_preset"),
