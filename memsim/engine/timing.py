@@ -42,6 +42,7 @@ from memsim.tech.cell import CellTech
 from memsim.workload.chunk import Chunk
 
 PRESET = -3        # queue-item index marking a hint's pre-programming
+REFRESH_KEYS = 1 << 62   # first key of refresh programs' keyed MLC draws (writes count from 0)
 
 
 @dataclass
@@ -152,6 +153,7 @@ class TimingEngine:
         self.cfg = cfg
         self.source = source
         self.path = path
+        self.refreshes_costed = 0
         self.cell = CellTech.from_config(cfg.cell)
         a = cfg.array
         self.amap = AddressMap.from_config(a)
@@ -748,7 +750,10 @@ class TimingEngine:
         read_pj = (self.line_bits + path.scheme.flag_cells) * cell.read_pj
         budget = self.round_budget_ua
         if path.mlc is not None:
-            cost = path.mlc.cost(np.zeros_like(stored), stored)
+            # Keyed apart from the writes' keys (high bit set), in refresh order.
+            keys = REFRESH_KEYS + self.refreshes_costed + np.arange(len(lines))
+            self.refreshes_costed += len(lines)
+            cost = path.mlc.cost(np.zeros_like(stored), stored, keys=keys)
             program, energy, cells = cost.program_ns, cost.energy_pj, cost.pulses
             current = np.minimum(cost.cells, max(1, int(budget // cell.reset_ua))) * cell.reset_ua
         else:

@@ -122,6 +122,7 @@ class WritePath:
         # False: apply chunks round by round with numpy (the compiled
         # path's reference in the tests).
         self.use_kernels = True
+        self.events = 0           # user writes and moves applied so far (keys of MLC draws)
         self.user_writes = 0
         self.move_writes = 0
         self.meta_writes = 0
@@ -156,14 +157,20 @@ class WritePath:
         user = np.concatenate([np.arange(n, dtype=np.int64), np.full(m, -1, np.int64)])[order]
         after = np.concatenate([np.arange(n, dtype=np.int64), np.asarray(mv.after, np.int64)])[order]
 
+        flips = None
         if data is None and self.data.kind != "flip":
             data = self.data.new(self.rng, np.empty((n, self.scheme.line_bytes), np.uint8))
+        elif data is None:
+            # Flip model: the masks of the user writes in stream order, so the
+            # k-th write gets the same mask however the stream is cut into chunks.
+            flips = self.data.flip_mask(self.rng, n)
         group = np.where(user < 0, after, -1)
         if self._compiled():
-            n_set, n_reset, ones = self._apply_compiled(dst, src, group, user, data)
+            n_set, n_reset, ones = self._apply_compiled(dst, src, group, user, data, flips)
             mlc_ns = mlc_pj = None
         else:
-            n_set, n_reset, ones, mlc_ns, mlc_pj = self._apply_rounds(dst, src, group, user, data)
+            n_set, n_reset, ones, mlc_ns, mlc_pj = self._apply_rounds(dst, src, group, user, data, flips)
+        self.events += n + m
         self.user_writes += n
         self.move_writes += m
         self.meta_writes += mv.cost_writes
@@ -179,19 +186,15 @@ class WritePath:
                 and self.stored.flags.c_contiguous and self.flags.flags.c_contiguous)
 
     def _apply_compiled(self, dst: np.ndarray, src: np.ndarray, group: np.ndarray, user: np.ndarray,
-                        data: np.ndarray | None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+                        data: np.ndarray | None,
+                        flips: np.ndarray | None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """All events of a chunk in one compiled pass (same result as :meth:`_apply_rounds`)."""
         k = dst.size
         n_set = np.zeros(k, dtype=np.int64)
         n_reset = np.zeros(k, dtype=np.int64)
         ones = np.zeros(k, dtype=np.int64)
         is_user = user >= 0
-        if data is None:
-            # Flip model: the masks are drawn round by round, as the round
-            # path draws them, so both paths take the same random numbers.
-            content, cidx = self._flip_masks(dst, src, group, is_user)
-        else:
-            content, cidx = data, np.maximum(user, 0)
+        content, cidx = (data if data is not None else flips), np.maximum(user, 0)
         content = np.ascontiguousarray(content, dtype=np.uint8).view(np.uint64)
         profile = self.cell_profile if self.cell_profile is not None else np.zeros(0, np.int64)
         bitops.write_events(self.scheme.kernel, self.scheme.word_bits, self.stored.view(np.uint64),
@@ -200,21 +203,8 @@ class WritePath:
         self._count(dst, is_user, n_set + n_reset)
         return n_set, n_reset, ones
 
-    def _flip_masks(self, dst: np.ndarray, src: np.ndarray, group: np.ndarray,
-                    is_user: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        """Flip-model masks of the user events, drawn in round order; (masks, row per event)."""
-        rounds = assign_rounds(dst, src, group)
-        by_round = np.argsort(rounds, kind="stable")
-        ue = by_round[is_user[by_round]]
-        cidx = np.zeros(dst.size, dtype=np.int64)
-        cidx[ue] = np.arange(ue.size)
-        counts = np.bincount(rounds[ue], minlength=1) if ue.size else np.zeros(0, np.int64)
-        parts = [self.data.flip_mask(self.rng, int(c)) for c in counts if c]
-        lb = self.scheme.line_bytes
-        return (np.concatenate(parts) if parts else np.zeros((1, lb), np.uint8)), cidx
-
     def _apply_rounds(self, dst: np.ndarray, src: np.ndarray, group: np.ndarray, user: np.ndarray,
-                      data: np.ndarray | None):
+                      data: np.ndarray | None, flips: np.ndarray | None):
         """Events round by round with numpy: (SET, RESET, stored 1 bits, MLC ns, MLC pJ) per event.
 
         Multi-level cells take this path; it is also the reference the
@@ -241,7 +231,7 @@ class WritePath:
                     new[is_user] = data[u[is_user]]
                 else:
                     cur = self.scheme.decode(old[is_user], old_flags[is_user])
-                    new[is_user] = self.data.new(self.rng, cur)
+                    new[is_user] = cur ^ flips[u[is_user]]
             if not is_user.all():
                 s = src[ev[~is_user]]
                 new[~is_user] = self.scheme.decode(self.stored[s], self.flags[s])
@@ -253,7 +243,10 @@ class WritePath:
             ones[ev] = popcount_rows(enc.stored)
             self.line_writes[d] += 1
             if self.mlc is not None:
-                cost = self.mlc.cost(old, enc.stored, full=self.scheme.name == "full_line")
+                # Keyed by the event's place in the stream: the attempts do
+                # not depend on chunking or on refreshes in between.
+                cost = self.mlc.cost(old, enc.stored, full=self.scheme.name == "full_line",
+                                     keys=self.events + ev)
                 mlc_ns[ev], mlc_pj[ev] = cost.program_ns, cost.energy_pj
                 self._count(d, is_user, cost.pulses)
                 continue
