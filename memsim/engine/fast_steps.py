@@ -14,7 +14,7 @@ import numpy as np
 from memsim.engine import kernel as K
 from memsim.engine import kernel_erase as KE
 from memsim.engine import kernel_hints as KH
-from memsim.policy.write.bits import popcount_rows
+from memsim.engine.ops import preset_costs
 from memsim.workload.chunk import Chunk
 
 
@@ -24,14 +24,7 @@ class AgentSteps:
     def _queue_hints(self, hints: Chunk) -> None:
         """Hints of the chunk the source takes now: one pre-programming each, in its
         bank's hint queue (same items as :meth:`TimingEngine._queue_hints`)."""
-        cell = self.cell
-        phys = self.path.leveler.lookup(hints.line)
-        ch, bank, _ = self.amap.locate(phys)
-        n_set = self.line_bits - popcount_rows(self.path.stored[phys])
-        per_set = cell.cells_per_round(self.round_budget_ua)[1]
-        service = cell.program_ns(n_set, np.zeros_like(n_set), self.round_budget_ua) + cell.read_ns
-        pj = n_set * cell.set_pj + self.line_bits * cell.read_pj
-        cur = np.minimum(n_set, per_set) * cell.set_ua
+        phys, ch, bank, service, cur, pj, n_set = preset_costs(self, hints)
         while int(self.ist[K.FREE_TOP]) < phys.size:
             self._grow_slots()
         self._ensure_heap(phys.size)

@@ -18,6 +18,7 @@ import numpy as np
 from numba import njit
 
 from memsim.engine.rows import count_row_hits
+from memsim.policy.write.bits import popcount_rows
 from memsim.workload.chunk import HINT, READ, Chunk
 
 
@@ -186,3 +187,21 @@ def _merge_order(a, b):
             out[k] = na + j
             j += 1
     return out
+
+
+def preset_costs(eng, hints: Chunk) -> tuple[np.ndarray, ...]:
+    """(phys, channel, bank, service ns, current uA, energy pJ, SET cells) of
+    pre-programming each hinted line: read it, SET its 0 cells (both engines).
+
+    References: Qureshi, Franceschini, Jagmohan and Lastras, "PreSET",
+    ISCA 2012 (bringing a line to the slow state before its write).
+    """
+    cell = eng.cell
+    phys = eng.path.leveler.lookup(hints.line)
+    ch, bank, _ = eng.amap.locate(phys)
+    n_set = eng.line_bits - popcount_rows(eng.path.stored[phys])
+    per_set = cell.cells_per_round(eng.round_budget_ua)[1]
+    service = cell.program_ns(n_set, np.zeros_like(n_set), eng.round_budget_ua) + cell.read_ns
+    pj = n_set * cell.set_pj + eng.line_bits * cell.read_pj
+    cur = np.minimum(n_set, per_set) * cell.set_ua
+    return phys, ch, bank, service, cur, pj, n_set

@@ -28,7 +28,7 @@ import numpy as np
 import simpy
 
 from memsim.engine.erase_agent import EraseAgent
-from memsim.engine.ops import prepare_ops
+from memsim.engine.ops import prepare_ops, preset_costs
 from memsim.engine.refresh_agent import REFRESH, URGENT, RefreshAgent
 from memsim.engine.sched import QueuePolicy, front_columns, settle
 from memsim.engine.stream import LatencyStream
@@ -544,19 +544,9 @@ class TimingEngine:
 
     def _queue_hints(self, hints: Chunk) -> None:
         """Hand write hints to their banks: each becomes a pre-programming
-        item (read the line, SET its 0 cells) served when the bank is idle.
-
-        References: Qureshi, Franceschini, Jagmohan and Lastras, "PreSET",
-        ISCA 2012 (bringing a line to the slow state before its write).
-        """
-        cell = self.cell
-        phys = self.path.leveler.lookup(hints.line)
-        ch, bank, _ = self.amap.locate(phys)
-        n_set = self.line_bits - popcount_rows(self.path.stored[phys])
-        per_set = cell.cells_per_round(self.round_budget_ua)[1]
-        service = cell.program_ns(n_set, np.zeros_like(n_set), self.round_budget_ua) + cell.read_ns
-        pj = n_set * cell.set_pj + self.line_bits * cell.read_pj
-        cur = np.minimum(n_set, per_set) * cell.set_ua
+        item (read the line, SET its 0 cells) served when the bank is idle
+        (:func:`memsim.engine.ops.preset_costs`)."""
+        phys, ch, bank, service, cur, pj, n_set = preset_costs(self, hints)
         hq = self.hq
         for t, b, c_, s_, cu, e, n, p_ in zip(hints.time_ns.tolist(), bank.tolist(), ch.tolist(),
                                               service.tolist(), cur.tolist(), pj.tolist(),
