@@ -232,3 +232,13 @@ def test_keyed_attempts_do_not_depend_on_batching() -> None:
     got = np.empty(300)
     got[order] = np.concatenate([p.program_ns for p in parts])
     assert np.array_equal(got, whole.program_ns)
+
+
+def test_refresh_estimate_stays_out_of_the_run_totals() -> None:
+    # Every programmed cell takes at least one pulse, so the cells the
+    # program-and-verify totals count cannot exceed the pulses in the wear
+    # ledger. The pre-run estimate of a refresh's length programs a sample of
+    # lines on a copy of the writer; its cells must not reach the run's totals.
+    s = simulate(load_config("workloads/mlc_refresh.toml")).summary
+    assert s["refreshes"] > 0
+    assert 0 < s["verify_cells_programmed"] <= s["wear_cells_total"]

@@ -156,6 +156,8 @@ def refresh_demand(engine: TimingEngine, sample: int = 4096) -> tuple[np.ndarray
     if path.mlc is not None:
         mlc = copy.copy(path.mlc)
         mlc.rng = stream(engine.cfg.run.seed, "refresh_demand")
+        mlc.totals = dict(mlc.totals)       # the estimate is not part of the run's totals
+        mlc.salt = None
         program = mlc.cost(np.zeros_like(stored), stored).program_ns
     else:
         n_reset = engine.line_bits - popcount_rows(stored)
