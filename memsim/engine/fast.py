@@ -23,9 +23,8 @@ from memsim.engine import kernel_sched as KS
 from memsim.engine.fast_steps import AgentSteps, grown_queues
 from memsim.engine.ops import OpColumns, prepare_ops
 from memsim.engine.refresh_agent import URGENT, RefreshAgent
-from memsim.engine.sched import settle
 from memsim.engine.stream import LatencyStream
-from memsim.engine.timing import TimingEngine, TimingTotals, price_energy
+from memsim.engine.timing import TimingEngine, TimingTotals
 from memsim.policy.refresh import RefreshPlan
 from memsim.policy.writepath import WritePath
 from memsim.workload.chunk import Chunk
@@ -418,15 +417,7 @@ class FastEngine(AgentSteps, TimingEngine):
         tot.set_cells += int(ist[K.SET_CELLS])
         tot.reset_cells += int(ist[K.RESET_CELLS])
         tot.read_bits += int(ist[K.READ_BITS])
-        if self.policy.active:
-            settle(self, tot, self.policy_counts())
-        price_energy(tot, self.cell)
-        if self.agent is not None:
-            self.agent.finish(tot.simulated_ns)
-            tot.refresh_pj = self.agent.energy_pj
-        if self.erase is not None:
-            tot.erase_pj = self.erase.energy_pj
-        return tot
+        return self._close_totals(tot)
 
 
 @njit(cache=True)

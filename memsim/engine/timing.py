@@ -769,6 +769,10 @@ class TimingEngine:
         order = np.asarray(self.done, np.int64)
         tot.stream.add(tot.op[order], tot.arrival_ns[order], tot.finish_ns[order])
         tot.bank_busy_ns = np.asarray(tot.bank_busy_ns, dtype=float)
+        return self._close_totals(tot)
+
+    def _close_totals(self, tot: TimingTotals) -> TimingTotals:
+        """The steps both engines end with: queue-policy counts, energy, agents' totals."""
         if self.policy.active:
             settle(self, tot, self.policy_counts())
         price_energy(tot, self.cell)
